@@ -1,0 +1,3 @@
+//! tinct: 2D transient scalar transport on structured grids.
+
+pub mod output;

@@ -1,0 +1,1 @@
+//! Output writers (frames, NetCDF, atomic files): filled in by the output work.
