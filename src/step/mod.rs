@@ -1,0 +1,466 @@
+//! Time stepping: the scheme choice, step-size control and the simulation driver.
+//!
+//! [`Simulation`] owns the model, the state, the stepper's scratch (allocated once) and the mass
+//! budget, and advances to requested times with steps that land on them exactly. The explicit
+//! stepper is the SSP Runge–Kutta family of Shu & Osher (1988) with 1, 2 or 3 stages, each stage
+//! one fused sweep of [`kernel`].
+
+pub(crate) mod kernel;
+
+use crate::budget::{Budget, BudgetRow};
+use crate::error::{invalid, positive, ModelError, RunError};
+use crate::model::Model;
+use crate::ops::boundary::{fill_ghosts, Side, SideKind};
+use crate::ops::diffusion;
+use crate::ops::limiter::Limiter;
+use crate::ops::sources::decay_factor;
+use kernel::{Block, StageParams};
+use std::ops::ControlFlow;
+
+/// Numerical choices of a run.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Scheme {
+    /// Convection scheme.
+    pub limiter: Limiter,
+    /// SSP Runge–Kutta stages, 1 to 3.
+    pub stages: u8,
+    /// Target Courant number (sum over directions) for the automatic step.
+    pub courant: f64,
+    /// A fixed step, s, instead of the automatic one.
+    pub dt: Option<f64>,
+    /// Safety factor on the explicit diffusion limit for the automatic step.
+    pub diffusion_safety: f64,
+}
+
+impl Default for Scheme {
+    fn default() -> Self {
+        Self {
+            limiter: Limiter::VanLeer,
+            stages: 2,
+            courant: 0.4,
+            dt: None,
+            diffusion_safety: 0.9,
+        }
+    }
+}
+
+/// Stable explicit step sizes of a model, s.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct StepLimits {
+    /// Sum of Courant numbers <= 1 (forward Euler upwind; the SSP coefficient of the 1-, 2- and
+    /// 3-stage schemes used here is 1, so the same bound holds for each).
+    pub convection: f64,
+    /// `(Kx/dx^2 + Ky/dy^2) dt <= 1/2`.
+    pub diffusion: f64,
+    /// Positivity of upwind with diffusion: `sum C + 2 (dx + dy) diffusion numbers <= 1`.
+    pub positivity: f64,
+}
+
+impl StepLimits {
+    /// The limits of `model` (infinite where a process is absent).
+    pub fn of(model: &Model) -> Self {
+        let conv = model.flow.courant_rate() * model.flow.max_factor();
+        let diff = model.diffusion_rate();
+        let inv = |r: f64| if r > 0.0 { 1.0 / r } else { f64::INFINITY };
+        Self {
+            convection: inv(conv),
+            diffusion: diffusion::stable_dt(model.kx, model.ky, model.grid.dx, model.grid.dy),
+            positivity: inv(conv + 2.0 * diff),
+        }
+    }
+
+    /// The stability bound a fixed step must respect.
+    pub fn stable(&self) -> f64 {
+        self.convection.min(self.diffusion)
+    }
+}
+
+/// The largest step of a run: the fixed `dt`, checked against the stability bound, or the
+/// automatic `courant / (Courant rate + 2 diffusion rate)` capped by the diffusion limit times
+/// the safety factor (so convection-dominated runs meet the target Courant number and every
+/// automatic step keeps upwind with diffusion positive).
+pub fn max_step(model: &Model, scheme: &Scheme) -> Result<f64, ModelError> {
+    if !(1..=3).contains(&scheme.stages) {
+        return Err(invalid("scheme.stages", scheme.stages, "1, 2 or 3"));
+    }
+    let lim = StepLimits::of(model);
+    if let Some(dt) = scheme.dt {
+        positive("scheme.dt", dt)?;
+        if dt > lim.stable() * (1.0 + 1e-12) {
+            let reason = if lim.convection <= lim.diffusion {
+                format!("sum of Courant numbers {:.3} > 1", dt / lim.convection)
+            } else {
+                format!(
+                    "diffusion number Kx dt/dx^2 + Ky dt/dy^2 = {:.3} > 1/2",
+                    0.5 * dt / lim.diffusion
+                )
+            };
+            return Err(ModelError::UnstableDt {
+                dt,
+                bound: lim.stable(),
+                reason,
+            });
+        }
+        return Ok(dt);
+    }
+    positive("scheme.courant", scheme.courant)?;
+    if !(scheme.diffusion_safety > 0.0 && scheme.diffusion_safety <= 1.0) {
+        return Err(invalid(
+            "scheme.diffusion_safety",
+            scheme.diffusion_safety,
+            "a number in (0, 1]",
+        ));
+    }
+    let conv = model.flow.courant_rate() * model.flow.max_factor();
+    let rate = conv + 2.0 * model.diffusion_rate();
+    let dt = (scheme.courant / rate).min(scheme.diffusion_safety * lim.diffusion);
+    if !dt.is_finite() {
+        // Nothing moves: no flow and no diffusion. Any step is exact; use one per output.
+        return Ok(f64::INFINITY);
+    }
+    Ok(dt)
+}
+
+/// The marched state.
+#[derive(Debug, Clone)]
+pub struct State {
+    /// Concentration, padded layout.
+    pub c: Vec<f64>,
+    /// Simulated time, s.
+    pub t: f64,
+    /// Steps taken.
+    pub step: u64,
+    /// The last step, s.
+    pub last_dt: f64,
+    /// Largest per-cell Courant-number sum of the last step.
+    pub last_courant: f64,
+}
+
+/// Explicit SSP Runge–Kutta stepper with its scratch.
+#[derive(Debug)]
+struct Explicit {
+    a: Vec<f64>,
+    b: Vec<f64>,
+    blocks: Vec<Block>,
+    rows_per_block: usize,
+}
+
+impl Explicit {
+    fn new(model: &Model) -> Self {
+        let ny = model.grid.ny;
+        let threads = rayon::current_num_threads().max(1);
+        // A few blocks per thread for balance; each block recomputes one face row.
+        let rows_per_block = ny.div_ceil(4 * threads).max(16).min(ny);
+        let nblocks = ny.div_ceil(rows_per_block);
+        Self {
+            a: model.zero_field(),
+            b: model.zero_field(),
+            blocks: (0..nblocks).map(|_| Block::new(model.grid.nx)).collect(),
+            rows_per_block,
+        }
+    }
+}
+
+/// SSP-RK stage coefficients (Shu & Osher 1988) as (alpha, beta, time offset) with
+/// `u_k = alpha u_n + beta (u_{k-1} + dt L(u_{k-1}))`, and the weights with which each
+/// stage's fluxes enter the step.
+fn tableau(stages: u8) -> (&'static [(f64, f64, f64)], &'static [f64]) {
+    match stages {
+        1 => (&[(0.0, 1.0, 0.0)], &[1.0]),
+        2 => (&[(0.0, 1.0, 0.0), (0.5, 0.5, 1.0)], &[0.5, 0.5]),
+        _ => (
+            &[
+                (0.0, 1.0, 0.0),
+                (0.75, 0.25, 1.0),
+                (1.0 / 3.0, 2.0 / 3.0, 0.5),
+            ],
+            &[1.0 / 6.0, 1.0 / 6.0, 2.0 / 3.0],
+        ),
+    }
+}
+
+/// A model, its state, stepper and budget.
+#[derive(Debug)]
+pub struct Simulation {
+    /// The model.
+    pub model: Model,
+    /// The numerical choices.
+    pub scheme: Scheme,
+    /// The state.
+    pub state: State,
+    /// The mass budget.
+    pub budget: Budget,
+    stepper: Explicit,
+    dt_max: f64,
+    scale: f64,
+}
+
+impl Simulation {
+    /// Starts a run at t = 0 from the padded `initial` field (land cells are zeroed);
+    /// instantaneous releases at t <= 0 are applied at once and booked as added mass.
+    pub fn new(model: Model, scheme: Scheme, mut initial: Vec<f64>) -> Result<Self, ModelError> {
+        if initial.len() != model.grid.padded_len() {
+            return Err(invalid(
+                "initial field length",
+                initial.len(),
+                format!("{} (padded grid)", model.grid.padded_len()),
+            ));
+        }
+        let dt_max = max_step(&model, &scheme)?;
+        for j in 0..model.grid.ny {
+            for i in 0..model.grid.nx {
+                let p = model.grid.idx(i as isize, j as isize);
+                if !model.mask.is_wet(i, j) {
+                    initial[p] = 0.0;
+                } else if !initial[p].is_finite() {
+                    return Err(invalid(
+                        format!("initial value at cell ({i}, {j})"),
+                        initial[p],
+                        "a finite number",
+                    ));
+                }
+            }
+        }
+        let mass0 = model.mass(&initial);
+        let mut budget = Budget::new(mass0);
+        let inv_vol = 1.0 / model.cell_volume();
+        for s in &model.sources {
+            let m = s.mass_at_start(0.0);
+            if m > 0.0 {
+                s.deposit(&mut initial, m, inv_vol);
+                budget.add_released(m);
+            }
+        }
+        let mut scale = crate::field::wet_min_max(&model.grid, &model.mask, &initial);
+        for side in Side::ALL {
+            if let SideKind::Open { value } | SideKind::Fixed { value } = model.boundaries.get(side)
+            {
+                scale.0 = scale.0.min(value);
+                scale.1 = scale.1.max(value);
+            }
+        }
+        let stepper = Explicit::new(&model);
+        let scale = scale.0.abs().max(scale.1.abs());
+        Ok(Self {
+            state: State {
+                c: initial,
+                t: 0.0,
+                step: 0,
+                last_dt: 0.0,
+                last_courant: 0.0,
+            },
+            model,
+            scheme,
+            budget,
+            stepper,
+            dt_max,
+            scale,
+        })
+    }
+
+    /// The largest step this run takes, s (infinite when nothing moves).
+    pub fn dt_max(&self) -> f64 {
+        self.dt_max
+    }
+
+    /// Advances to `target` in equal steps no larger than [`Self::dt_max`], landing on it
+    /// exactly. `after_step` runs after every step; returning `Break` stops early.
+    pub fn advance_to(
+        &mut self,
+        target: f64,
+        mut after_step: impl FnMut(&Simulation) -> ControlFlow<()>,
+    ) -> Result<(), RunError> {
+        while self.state.t < target {
+            let remaining = target - self.state.t;
+            let n = if self.dt_max.is_finite() {
+                (remaining / self.dt_max * (1.0 - 1e-12)).ceil().max(1.0)
+            } else {
+                1.0
+            };
+            let dt = remaining / n;
+            let last = n <= 1.0;
+            self.step(dt)?;
+            if last {
+                self.state.t = target;
+            }
+            if after_step(self).is_break() {
+                break;
+            }
+        }
+        Ok(())
+    }
+
+    /// One step of `dt` seconds: convection and diffusion (SSP-RK), decay, then sources.
+    pub fn step(&mut self, dt: f64) -> Result<(), RunError> {
+        let Self {
+            model,
+            scheme,
+            state,
+            budget,
+            stepper,
+            ..
+        } = self;
+        let m = &*model;
+        let (stages, weights) = tableau(scheme.stages);
+        let decay = decay_factor(m.decay_rate, dt);
+        let mut side_mass = [[0.0f64; 2]; 4];
+        let mut max_factor = 0.0f64;
+        let mut transported = 0.0;
+        let mut max_abs = 0.0;
+        let masked = m.has_land();
+        let nst = stages.len();
+        for (k, &(alpha, beta, toff)) in stages.iter().enumerate() {
+            let factor = m.flow.factor(state.t + toff * dt);
+            max_factor = max_factor.max(factor.abs());
+            let p = StageParams {
+                dt,
+                factor,
+                alpha,
+                beta,
+                final_stage: k + 1 == nst,
+                decay,
+            };
+            // Stage buffers: c -> a -> b -> a (3 stages), c -> a -> b (2), c -> a (1).
+            match k {
+                0 => fill_ghosts(&m.grid, &m.boundaries, &mut state.c),
+                1 => fill_ghosts(&m.grid, &m.boundaries, &mut stepper.a),
+                _ => fill_ghosts(&m.grid, &m.boundaries, &mut stepper.b),
+            }
+            let (src, out): (&[f64], &mut [f64]) = match k {
+                0 => (&state.c, &mut stepper.a),
+                1 => (&stepper.a, &mut stepper.b),
+                _ => (&stepper.b, &mut stepper.a),
+            };
+            let base: &[f64] = &state.c;
+            let rpb = stepper.rows_per_block;
+            let blocks = &mut stepper.blocks;
+            crate::with_limiter!(scheme.limiter, K => {
+                if masked {
+                    kernel::stage::<K, true>(m, src, base, out, blocks, rpb, p)
+                } else {
+                    kernel::stage::<K, false>(m, src, base, out, blocks, rpb, p)
+                }
+            });
+            for blk in blocks.iter() {
+                for (sm, (i, o)) in side_mass
+                    .iter_mut()
+                    .zip(blk.sums.side_in.iter().zip(&blk.sums.side_out))
+                {
+                    sm[0] += weights[k] * i;
+                    sm[1] += weights[k] * o;
+                }
+            }
+            if p.final_stage {
+                let mut sum = crate::field::Neumaier::default();
+                for blk in blocks.iter() {
+                    sum.add(blk.sums.sum.value());
+                    max_abs = f64::max(max_abs, blk.sums.max_abs);
+                }
+                transported = sum.value();
+            }
+        }
+        // The final stage wrote into a or b: make it the state.
+        match nst {
+            2 => std::mem::swap(&mut state.c, &mut stepper.b),
+            _ => std::mem::swap(&mut state.c, &mut stepper.a),
+        }
+        let h = m.depth;
+        for side in Side::ALL {
+            let len = match side {
+                Side::West | Side::East => m.grid.dy,
+                _ => m.grid.dx,
+            };
+            let [i, o] = side_mass[side.index()];
+            if i != 0.0 || o != 0.0 {
+                budget.add_side(side, i * len * h * dt, o * len * h * dt);
+            }
+        }
+        if decay != 1.0 {
+            budget.add_decayed((1.0 - decay) * transported * m.cell_volume());
+        }
+        let t1 = state.t + dt;
+        let inv_vol = 1.0 / m.cell_volume();
+        for s in &m.sources {
+            let mass = s.mass_between(state.t, t1);
+            if mass > 0.0 {
+                s.deposit(&mut state.c, mass, inv_vol);
+                budget.add_released(mass);
+            }
+        }
+        state.t = t1;
+        state.step += 1;
+        state.last_dt = dt;
+        state.last_courant = m.flow.courant_rate() * max_factor * dt;
+        let limit = 1e3 * (self.scale + budget.added() * inv_vol);
+        if !(max_abs <= limit) {
+            return Err(self.diverged());
+        }
+        Ok(())
+    }
+
+    /// Builds the divergence report: the worst cell and the likely cause.
+    fn diverged(&self) -> RunError {
+        let g = &self.model.grid;
+        let (mut wi, mut wj, mut wv) = (0, 0, 0.0f64);
+        'scan: for j in 0..g.ny {
+            for i in 0..g.nx {
+                let v = self.state.c[g.idx(i as isize, j as isize)];
+                if !v.is_finite() {
+                    (wi, wj, wv) = (i, j, v);
+                    break 'scan;
+                }
+                if v.abs() > wv.abs() {
+                    (wi, wj, wv) = (i, j, v);
+                }
+            }
+        }
+        let dt = self.state.last_dt;
+        let lim = StepLimits::of(&self.model);
+        let c = dt / lim.convection;
+        let d = 0.5 * dt / lim.diffusion;
+        let lname = self.scheme.limiter.name();
+        let cause = if c > 1.0 || d > 0.5 {
+            format!("time step too large: dt = {dt:.4e} s gives a Courant-number sum of {c:.3} (limit 1) and a diffusion number of {d:.3} (limit 0.5)")
+        } else if !self.scheme.limiter.is_bounded() {
+            format!(
+                "the unbounded '{lname}' convection scheme ({} stage(s)): it oscillates where the cell Peclet number exceeds 2 and forward Euler with it is unstable for pure convection; use a bounded limiter such as van_leer, or more stages",
+                self.scheme.stages
+            )
+        } else {
+            format!("an instability at this cell with dt = {dt:.4e} s (Courant-number sum {c:.3}, diffusion number {d:.3}); check boundary values and sources")
+        };
+        RunError::Diverged {
+            step: self.state.step,
+            time: self.state.t,
+            i: wi,
+            j: wj,
+            value: wv,
+            cause,
+        }
+    }
+
+    /// The mass in the domain now.
+    pub fn mass(&self) -> f64 {
+        self.model.mass(&self.state.c)
+    }
+
+    /// Measures mass, min and max now and books a budget row.
+    pub fn budget_row(&mut self) -> BudgetRow {
+        let mass = self.mass();
+        let (lo, hi) = crate::field::wet_min_max(&self.model.grid, &self.model.mask, &self.state.c);
+        let s = &self.state;
+        self.budget
+            .row(s.t, s.step, s.last_dt, mass, lo, hi, s.last_courant)
+    }
+
+    /// The field's interior as `nx * ny` row-major values (row 0 south).
+    pub fn field(&self) -> Vec<f64> {
+        self.model.grid.interior(&self.state.c)
+    }
+
+    /// Concentration of the cell containing (x, y), if inside the grid.
+    pub fn value_at(&self, x: f64, y: f64) -> Option<f64> {
+        let (i, j) = self.model.grid.cell_at(x, y)?;
+        Some(self.state.c[self.model.grid.idx(i as isize, j as isize)])
+    }
+}
