@@ -117,16 +117,7 @@ impl Budget {
     }
 
     /// Builds a row and remembers the worst |residual| seen.
-    pub fn row(
-        &mut self,
-        time: f64,
-        step: u64,
-        dt: f64,
-        mass: f64,
-        min: f64,
-        max: f64,
-        courant: f64,
-    ) -> BudgetRow {
+    pub fn row(&mut self, time: f64, step: u64, dt: f64, mass: f64, min: f64, max: f64, courant: f64) -> BudgetRow {
         let residual = self.residual(mass);
         self.worst_residual = self.worst_residual.max(residual.abs());
         BudgetRow {

@@ -56,7 +56,9 @@ pub enum ModelError {
 #[non_exhaustive]
 pub enum RunError {
     /// A non-finite or runaway value appeared in the field.
-    #[error("the run diverged at step {step}, t = {time} s: cell (i = {i}, j = {j}) holds {value}; likely cause: {cause}")]
+    #[error(
+        "the run diverged at step {step}, t = {time} s: cell (i = {i}, j = {j}) holds {value}; likely cause: {cause}"
+    )]
     Diverged {
         /// Step number (1-based) in which it happened.
         step: u64,
@@ -74,11 +76,7 @@ pub enum RunError {
 }
 
 /// Shorthand for an [`ModelError::InvalidValue`].
-pub(crate) fn invalid(
-    what: impl Into<String>,
-    value: impl ToString,
-    allowed: impl Into<String>,
-) -> ModelError {
+pub(crate) fn invalid(what: impl Into<String>, value: impl ToString, allowed: impl Into<String>) -> ModelError {
     ModelError::InvalidValue {
         what: what.into(),
         value: value.to_string(),

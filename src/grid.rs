@@ -33,14 +33,7 @@ pub struct Grid {
 impl Grid {
     /// A grid of `nx` by `ny` cells of `dx` by `dy` metres with its lower-left corner at
     /// (`x0`, `y0`).
-    pub fn new(
-        nx: usize,
-        ny: usize,
-        dx: f64,
-        dy: f64,
-        x0: f64,
-        y0: f64,
-    ) -> Result<Self, ModelError> {
+    pub fn new(nx: usize, ny: usize, dx: f64, dy: f64, x0: f64, y0: f64) -> Result<Self, ModelError> {
         if nx == 0 {
             return Err(invalid("grid.nx", nx, "an integer >= 1"));
         }
@@ -58,14 +51,7 @@ impl Grid {
         positive("grid.dy", dy)?;
         finite("grid.origin[0]", x0)?;
         finite("grid.origin[1]", y0)?;
-        Ok(Self {
-            nx,
-            ny,
-            dx,
-            dy,
-            x0,
-            y0,
-        })
+        Ok(Self { nx, ny, dx, dy, x0, y0 })
     }
 
     /// Distance between the starts of two consecutive padded rows.
@@ -135,10 +121,7 @@ impl Grid {
         if !(fi >= 0.0 && fj >= 0.0 && fi <= self.nx as f64 && fj <= self.ny as f64) {
             return None;
         }
-        Some((
-            (fi as usize).min(self.nx - 1),
-            (fj as usize).min(self.ny - 1),
-        ))
+        Some(((fi as usize).min(self.nx - 1), (fj as usize).min(self.ny - 1)))
     }
 
     /// Copies the interior of a padded array into a new `nx * ny` row-major vector.
@@ -190,11 +173,7 @@ impl Mask {
     }
 
     /// Marks every cell whose centre satisfies `is_land` as land.
-    pub fn with_land(
-        mut self,
-        grid: &Grid,
-        is_land: impl Fn(f64, f64) -> bool,
-    ) -> Result<Self, ModelError> {
+    pub fn with_land(mut self, grid: &Grid, is_land: impl Fn(f64, f64) -> bool) -> Result<Self, ModelError> {
         for j in 0..grid.ny {
             for i in 0..grid.nx {
                 let (x, y) = grid.centre(i, j);

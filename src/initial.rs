@@ -54,21 +54,13 @@ impl Initial {
             Initial::Uniform { value } => {
                 finite("initial.value", value)?;
             }
-            Initial::Gaussian {
-                centre,
-                sigma,
-                peak,
-            } => {
+            Initial::Gaussian { centre, sigma, peak } => {
                 finite("initial.centre[0]", centre.0)?;
                 finite("initial.centre[1]", centre.1)?;
                 positive("initial.sigma", sigma)?;
                 finite("initial.peak", peak)?;
             }
-            Initial::Cone {
-                centre,
-                radius,
-                peak,
-            } => {
+            Initial::Cone { centre, radius, peak } => {
                 finite("initial.centre[0]", centre.0)?;
                 finite("initial.centre[1]", centre.1)?;
                 positive("initial.radius", radius)?;
@@ -104,19 +96,11 @@ impl Initial {
         match *self {
             Initial::Zero => 0.0,
             Initial::Uniform { value } => value,
-            Initial::Gaussian {
-                centre,
-                sigma,
-                peak,
-            } => {
+            Initial::Gaussian { centre, sigma, peak } => {
                 let r2 = (x - centre.0).powi(2) + (y - centre.1).powi(2);
                 peak * (-0.5 * r2 / (sigma * sigma)).exp()
             }
-            Initial::Cone {
-                centre,
-                radius,
-                peak,
-            } => {
+            Initial::Cone { centre, radius, peak } => {
                 let r = ((x - centre.0).powi(2) + (y - centre.1).powi(2)).sqrt();
                 peak * (1.0 - r / radius).max(0.0)
             }
@@ -128,8 +112,7 @@ impl Initial {
                 value,
             } => {
                 let r = ((x - centre.0).powi(2) + (y - centre.1).powi(2)).sqrt();
-                let in_slot =
-                    (x - centre.0).abs() < 0.5 * slot_width && y < centre.1 - radius + slot_length;
+                let in_slot = (x - centre.0).abs() < 0.5 * slot_width && y < centre.1 - radius + slot_length;
                 if r <= radius && !in_slot {
                     value
                 } else {

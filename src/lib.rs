@@ -24,6 +24,7 @@
 //! assert!((sim.mass() - m0).abs() < 1e-12 * m0);
 //! ```
 
+pub mod bench;
 pub mod budget;
 pub mod error;
 pub mod field;

@@ -38,6 +38,12 @@ pub enum FlowKind {
         /// U, m/s.
         speed: f64,
     },
+    /// The swirl's base field held steady: one counter-clockwise cell filling the rectangle,
+    /// psi = (U Ly / pi) sin^2(pi xi) sin^2(pi eta).
+    Vortex {
+        /// U, m/s.
+        speed: f64,
+    },
 }
 
 /// An optional tidal factor `cos(2 pi t / period + phase)` on the base field.
@@ -83,6 +89,9 @@ impl FlowSpec {
                 positive("flow.period", period)?;
                 finite("flow.speed", speed)?;
             }
+            FlowKind::Vortex { speed } => {
+                finite("flow.speed", speed)?;
+            }
         }
         if let Some(t) = self.tide {
             positive("flow.tide.period", t.period)?;
@@ -107,12 +116,7 @@ pub struct Flow {
 impl Flow {
     /// Evaluates `spec` on the grid; faces that touch land, and faces on walls, get zero normal
     /// velocity. For a periodic pair the last face copies the first so the wrap is exact.
-    pub fn new(
-        spec: FlowSpec,
-        grid: &Grid,
-        mask: &Mask,
-        bnd: &Boundaries,
-    ) -> Result<Self, ModelError> {
+    pub fn new(spec: FlowSpec, grid: &Grid, mask: &Mask, bnd: &Boundaries) -> Result<Self, ModelError> {
         spec.validate()?;
         let n = grid.padded_len();
         let (nx, ny) = (grid.nx, grid.ny);
@@ -140,7 +144,7 @@ impl Flow {
                 };
                 from_stream_function(grid, &mut u, &mut v, psi);
             }
-            FlowKind::Swirl { speed, .. } => {
+            FlowKind::Swirl { speed, .. } | FlowKind::Vortex { speed } => {
                 // sin(pi k / n) evaluated on min(k, n - k) so both ends are exactly zero.
                 let s2 = |k: usize, n: usize| {
                     let m = k.min(n - k) as f64 / n as f64;
@@ -250,12 +254,7 @@ impl Flow {
 
 /// Sets face velocities from a stream function given at corner (i, j), i in 0..=nx,
 /// j in 0..=ny (corner (i, j) at (x0 + i dx, y0 + j dy)).
-pub fn from_stream_function(
-    grid: &Grid,
-    u: &mut [f64],
-    v: &mut [f64],
-    psi: impl Fn(usize, usize) -> f64,
-) {
+pub fn from_stream_function(grid: &Grid, u: &mut [f64], v: &mut [f64], psi: impl Fn(usize, usize) -> f64) {
     let (nx, ny) = (grid.nx, grid.ny);
     let corners: Vec<f64> = (0..=ny)
         .flat_map(|j| (0..=nx).map(move |i| (i, j)))
@@ -352,9 +351,7 @@ mod tests {
     fn walls_and_land_zero_the_normal_velocity() {
         let g = Grid::new(10, 10, 1.0, 1.0, 0.0, 0.0).unwrap();
         let m = Mask::all_water(&g)
-            .with_land(&g, |x, y| {
-                (4.0..6.0).contains(&x) && (4.0..6.0).contains(&y)
-            })
+            .with_land(&g, |x, y| (4.0..6.0).contains(&x) && (4.0..6.0).contains(&y))
             .unwrap();
         let f = Flow::new(FlowSpec::uniform(1.0, 0.5), &g, &m, &Boundaries::walls()).unwrap();
         for j in 0..10 {

@@ -204,12 +204,7 @@ pub fn fill_ghosts(grid: &Grid, b: &Boundaries, c: &mut [f64]) {
     let s = grid.stride();
     for j in 0..ny {
         let row = grid.idx(0, j);
-        fill_line(
-            &mut c[row - 2..row + nx as usize + 2],
-            nx as usize,
-            b.west,
-            b.east,
-        );
+        fill_line(&mut c[row - 2..row + nx as usize + 2], nx as usize, b.west, b.east);
     }
     for i in 0..nx {
         let base = grid.idx(i, -2);
@@ -230,9 +225,7 @@ pub fn fill_ghosts(grid: &Grid, b: &Boundaries, c: &mut [f64]) {
 
 /// Fills the halo of one contiguous line (a padded row: 2 ghosts, n cells, 2 ghosts).
 fn fill_line(line: &mut [f64], n: usize, low: SideKind, high: SideKind) {
-    let g = |k: usize, hi: bool, kind: SideKind, line: &[f64]| {
-        ghost_value(kind, k, &|m| line[m + 2], n, hi)
-    };
+    let g = |k: usize, hi: bool, kind: SideKind, line: &[f64]| ghost_value(kind, k, &|m| line[m + 2], n, hi);
     let l0 = g(0, false, low, line);
     let l1 = g(1, false, low, line);
     let h0 = g(0, true, high, line);
@@ -277,18 +270,11 @@ mod tests {
         let mut b = Boundaries::walls();
         b.west = SideKind::Periodic;
         let e = b.validate().unwrap_err().to_string();
-        assert!(
-            e.contains("west") && e.contains("east") && e.contains("wall"),
-            "{e}"
-        );
+        assert!(e.contains("west") && e.contains("east") && e.contains("wall"), "{e}");
         b.east = SideKind::Periodic;
         assert!(b.validate().is_ok());
         b.north = SideKind::Fixed { value: f64::NAN };
-        assert!(b
-            .validate()
-            .unwrap_err()
-            .to_string()
-            .contains("boundary.north.value"));
+        assert!(b.validate().unwrap_err().to_string().contains("boundary.north.value"));
     }
 
     #[test]

@@ -14,12 +14,20 @@ use crate::ops::limiter::LimiterKernel;
 #[inline(always)]
 pub fn face_value<K: LimiterKernel>(w: f64, ll: f64, l: f64, r: f64, rr: f64, uu_open: f64) -> f64 {
     let pos = w >= 0.0;
-    let up = if pos { l } else { r };
-    let far = if pos { ll } else { rr };
-    let down = if pos { r } else { l };
+    let up = pick(pos, l, r);
+    let far = pick(pos, ll, rr);
+    let down = pick(pos, r, l);
     let a = (up - far) * uu_open;
     let b = down - up;
     up + K::increment(a, b)
+}
+
+/// `if cond { a } else { b }` on values already loaded, written with bit masks so the
+/// compiler blends registers instead of turning the choice into a gathered load.
+#[inline(always)]
+pub fn pick(cond: bool, a: f64, b: f64) -> f64 {
+    let m = 0u64.wrapping_sub(u64::from(cond));
+    f64::from_bits((a.to_bits() & m) | (b.to_bits() & !m))
 }
 
 /// Convective flux `w c_f` through a face (per unit face length and depth).

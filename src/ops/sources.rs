@@ -54,12 +54,7 @@ pub struct Source {
 
 impl Source {
     /// Resolves `spec` on the grid; `label` names it in errors (e.g. `source[2]`).
-    pub fn new(
-        spec: &SourceSpec,
-        label: &str,
-        grid: &Grid,
-        mask: &Mask,
-    ) -> Result<Self, ModelError> {
+    pub fn new(spec: &SourceSpec, label: &str, grid: &Grid, mask: &Mask) -> Result<Self, ModelError> {
         let (x, y) = (
             finite(&format!("{label}.at[0]"), spec.at.0)?,
             finite(&format!("{label}.at[1]"), spec.at.1)?,
@@ -171,10 +166,7 @@ fn gaussian_weights(grid: &Grid, mask: &Mask, x: f64, y: f64, s: f64) -> Vec<(us
             let (cx, cy) = grid.centre(i, j);
             let d2 = (cx - x).powi(2) + (cy - y).powi(2);
             if d2 <= reach * reach {
-                cells.push((
-                    grid.idx(i as isize, j as isize),
-                    (-0.5 * d2 / (s * s)).exp(),
-                ));
+                cells.push((grid.idx(i as isize, j as isize), (-0.5 * d2 / (s * s)).exp()));
             }
         }
     }
@@ -263,13 +255,8 @@ mod tests {
             .to_string()
             .contains("on land"));
         spec.at = (-1.0, 10.0);
-        let e = Source::new(&spec, "source[1]", &g, &m)
-            .unwrap_err()
-            .to_string();
-        assert!(
-            e.contains("source[1]") && e.contains("outside the grid"),
-            "{e}"
-        );
+        let e = Source::new(&spec, "source[1]", &g, &m).unwrap_err().to_string();
+        assert!(e.contains("source[1]") && e.contains("outside the grid"), "{e}");
         spec.at = (5.0, 5.0);
         spec.release = Release::Continuous {
             rate: 1.0,
@@ -301,10 +288,7 @@ mod tests {
         assert_eq!(s.mass_between(0.0, 100.0), 20.0);
         let i = Source::new(
             &SourceSpec {
-                release: Release::Instant {
-                    mass: 3.0,
-                    at: 10.0,
-                },
+                release: Release::Instant { mass: 3.0, at: 10.0 },
                 ..spec
             },
             "s",

@@ -23,10 +23,10 @@ pub(crate) struct BlockSums {
     pub side_in: [f64; 4],
     /// Per side: flux sum out of the domain.
     pub side_out: [f64; 4],
-    /// Sum of the transported field (final stage only, before decay).
+    /// Sum of the transported field (final stage with decay only, before decay).
     pub sum: Neumaier,
-    /// Largest |c| after the stage (final stage only).
-    pub max_abs: f64,
+    /// Whether a value of the final stage is non-finite or above the run's limit.
+    pub bad: bool,
 }
 
 /// Scratch of one row block: three face rows.
@@ -50,7 +50,7 @@ impl Block {
 }
 
 /// What one stage computes: `out = alpha base + beta (src + dt L(src))`, then, on the final
-/// stage, `out *= decay`.
+/// stage, `out *= decay`; values above `limit` in magnitude (or non-finite) are flagged.
 #[derive(Debug, Clone, Copy)]
 pub(crate) struct StageParams {
     pub dt: f64,
@@ -60,6 +60,7 @@ pub(crate) struct StageParams {
     pub beta: f64,
     pub final_stage: bool,
     pub decay: f64,
+    pub limit: f64,
 }
 
 /// Runs one stage over all row blocks. `src` must have its ghosts filled.
@@ -80,7 +81,11 @@ pub(crate) fn stage<K: LimiterKernel, const MASKED: bool>(
         .zip(blocks.par_iter_mut())
         .enumerate()
         .for_each(|(b, (chunk, blk))| {
-            block::<K, MASKED>(m, src, base, chunk, blk, b * rows_per_block, p);
+            if p.alpha == 0.0 {
+                block::<K, MASKED, false>(m, src, base, chunk, blk, b * rows_per_block, p);
+            } else {
+                block::<K, MASKED, true>(m, src, base, chunk, blk, b * rows_per_block, p);
+            }
         });
 }
 
@@ -89,59 +94,86 @@ fn wet_f(w: u8) -> f64 {
     f64::from(w)
 }
 
-/// Fluxes through the y-faces of face row `jf` (between cell rows jf-1 and jf) into `f`.
+/// The four cell rows around a row of y-faces (between cell rows jf-1 and jf), the face
+/// velocities and the wet flags, each `nx` long.
+struct YRows<'a> {
+    ll: &'a [f64],
+    l: &'a [f64],
+    r: &'a [f64],
+    rr: &'a [f64],
+    v: &'a [f64],
+    wll: &'a [u8],
+    wl: &'a [u8],
+    wr: &'a [u8],
+    wrr: &'a [u8],
+}
+
+impl<'a> YRows<'a> {
+    #[inline(always)]
+    fn new(m: &'a Model, src: &'a [f64], jf: usize) -> Self {
+        let (s, nx) = (m.grid.stride(), m.grid.nx);
+        let p = (jf + 2) * s + 2;
+        let (a, b, c, d) = (p - 2 * s, p - s, p, p + s);
+        Self {
+            ll: &src[a..a + nx],
+            l: &src[b..b + nx],
+            r: &src[c..c + nx],
+            rr: &src[d..d + nx],
+            v: &m.flow.v[p..p + nx],
+            wll: &m.wet[a..a + nx],
+            wl: &m.wet[b..b + nx],
+            wr: &m.wet[c..c + nx],
+            wrr: &m.wet[d..d + nx],
+        }
+    }
+
+    /// The same rows cut to `n` (lets the compiler drop bounds checks in the loops).
+    #[inline(always)]
+    fn cut(&self, n: usize) -> Self {
+        Self {
+            ll: &self.ll[..n],
+            l: &self.l[..n],
+            r: &self.r[..n],
+            rr: &self.rr[..n],
+            v: &self.v[..n],
+            wll: &self.wll[..n],
+            wl: &self.wl[..n],
+            wr: &self.wr[..n],
+            wrr: &self.wrr[..n],
+        }
+    }
+
+    /// Total (convective + diffusive) flux through face i.
+    #[inline(always)]
+    fn flux<K: LimiterKernel, const MASKED: bool>(&self, i: usize, factor: f64, coef: f64) -> f64 {
+        let w = factor * self.v[i];
+        if MASKED {
+            let uu = convection::pick(w >= 0.0, wet_f(self.wll[i]), wet_f(self.wrr[i]));
+            let d = coef * wet_f(self.wl[i]) * wet_f(self.wr[i]);
+            convection::flux::<K>(w, self.ll[i], self.l[i], self.r[i], self.rr[i], uu)
+                + diffusion::flux(d, self.l[i], self.r[i])
+        } else {
+            convection::flux::<K>(w, self.ll[i], self.l[i], self.r[i], self.rr[i], 1.0)
+                + diffusion::flux(coef, self.l[i], self.r[i])
+        }
+    }
+}
+
+/// Fluxes through the y-faces of face row `jf` into `f`.
 #[inline(always)]
-fn y_faces<K: LimiterKernel, const MASKED: bool>(
-    m: &Model,
-    src: &[f64],
-    jf: usize,
-    factor: f64,
-    f: &mut [f64],
-) {
-    let g = &m.grid;
-    let (s, nx) = (g.stride(), g.nx);
-    let p = (jf + 2) * s + 2;
-    let ll = &src[p - 2 * s..p - 2 * s + nx];
-    let l = &src[p - s..p - s + nx];
-    let r = &src[p..p + nx];
-    let rr = &src[p + s..p + s + nx];
-    let v = &m.flow.v[p..p + nx];
+fn y_faces<K: LimiterKernel, const MASKED: bool>(m: &Model, src: &[f64], jf: usize, factor: f64, f: &mut [f64]) {
+    let nx = m.grid.nx;
+    let y = YRows::new(m, src, jf).cut(nx);
     let f = &mut f[..nx];
-    let coef = m.ky / g.dy;
-    if MASKED {
-        let wll = &m.wet[p - 2 * s..p - 2 * s + nx];
-        let wl = &m.wet[p - s..p - s + nx];
-        let wr = &m.wet[p..p + nx];
-        let wrr = &m.wet[p + s..p + s + nx];
-        for i in 0..nx {
-            let w = factor * v[i];
-            let uu = if w >= 0.0 {
-                wet_f(wll[i])
-            } else {
-                wet_f(wrr[i])
-            };
-            let d = coef * wet_f(wl[i]) * wet_f(wr[i]);
-            f[i] = convection::flux::<K>(w, ll[i], l[i], r[i], rr[i], uu)
-                + diffusion::flux(d, l[i], r[i]);
-        }
-    } else {
-        for i in 0..nx {
-            let w = factor * v[i];
-            f[i] = convection::flux::<K>(w, ll[i], l[i], r[i], rr[i], 1.0)
-                + diffusion::flux(coef, l[i], r[i]);
-        }
+    let coef = m.ky / m.grid.dy;
+    for (i, fi) in f.iter_mut().enumerate() {
+        *fi = y.flux::<K, MASKED>(i, factor, coef);
     }
 }
 
 /// Fluxes through the x-faces of cell row `j` (nx + 1 faces, west face of cell i at i) into `f`.
 #[inline(always)]
-fn x_faces<K: LimiterKernel, const MASKED: bool>(
-    m: &Model,
-    src: &[f64],
-    j: usize,
-    factor: f64,
-    f: &mut [f64],
-) {
+fn x_faces<K: LimiterKernel, const MASKED: bool>(m: &Model, src: &[f64], j: usize, factor: f64, f: &mut [f64]) {
     let g = &m.grid;
     let (s, n) = (g.stride(), g.nx + 1);
     let p0 = (j + 2) * s;
@@ -152,28 +184,17 @@ fn x_faces<K: LimiterKernel, const MASKED: bool>(
     let coef = m.kx / g.dx;
     if MASKED {
         let wrow = &m.wet[p0..p0 + s];
-        let (wll, wl, wr, wrr) = (
-            &wrow[0..n],
-            &wrow[1..n + 1],
-            &wrow[2..n + 2],
-            &wrow[3..n + 3],
-        );
+        let (wll, wl, wr, wrr) = (&wrow[0..n], &wrow[1..n + 1], &wrow[2..n + 2], &wrow[3..n + 3]);
         for i in 0..n {
             let w = factor * u[i];
-            let uu = if w >= 0.0 {
-                wet_f(wll[i])
-            } else {
-                wet_f(wrr[i])
-            };
+            let uu = convection::pick(w >= 0.0, wet_f(wll[i]), wet_f(wrr[i]));
             let d = coef * wet_f(wl[i]) * wet_f(wr[i]);
-            f[i] = convection::flux::<K>(w, ll[i], l[i], r[i], rr[i], uu)
-                + diffusion::flux(d, l[i], r[i]);
+            f[i] = convection::flux::<K>(w, ll[i], l[i], r[i], rr[i], uu) + diffusion::flux(d, l[i], r[i]);
         }
     } else {
         for i in 0..n {
             let w = factor * u[i];
-            f[i] = convection::flux::<K>(w, ll[i], l[i], r[i], rr[i], 1.0)
-                + diffusion::flux(coef, l[i], r[i]);
+            f[i] = convection::flux::<K>(w, ll[i], l[i], r[i], rr[i], 1.0) + diffusion::flux(coef, l[i], r[i]);
         }
     }
 }
@@ -217,15 +238,7 @@ fn side_row(
 
 /// Book-keeps one side face (west or east) of an x-face row.
 #[inline(always)]
-fn side_face(
-    kind: SideKind,
-    side: Side,
-    w: f64,
-    inner: f64,
-    wet: u8,
-    coef2: f64,
-    sums: &mut BlockSums,
-) -> Option<f64> {
+fn side_face(kind: SideKind, side: Side, w: f64, inner: f64, wet: u8, coef2: f64, sums: &mut BlockSums) -> Option<f64> {
     if kind == SideKind::Periodic {
         return None;
     }
@@ -244,7 +257,8 @@ fn side_face(
     Some(flux)
 }
 
-fn block<K: LimiterKernel, const MASKED: bool>(
+#[allow(clippy::too_many_arguments)]
+fn block<K: LimiterKernel, const MASKED: bool, const BASE: bool>(
     m: &Model,
     src: &[f64],
     base: &[f64],
@@ -260,6 +274,8 @@ fn block<K: LimiterKernel, const MASKED: bool>(
     let dtdx = p.dt / g.dx;
     let dtdy = p.dt / g.dy;
     let (cx2, cy2) = (2.0 * m.kx / g.dx, 2.0 * m.ky / g.dy);
+    let coef_y = m.ky / g.dy;
+    let limit = p.limit;
     let Block { fx, fys, fyn, sums } = blk;
     *sums = BlockSums::default();
     // South faces of the block's first row.
@@ -282,15 +298,7 @@ fn block<K: LimiterKernel, const MASKED: bool>(
         let j = j0 + r;
         let q = g.idx(0, j as isize);
         x_faces::<K, MASKED>(m, src, j, p.factor, fx);
-        if let Some(f) = side_face(
-            b.west,
-            Side::West,
-            p.factor * m.flow.u[q],
-            src[q],
-            m.wet[q],
-            cx2,
-            sums,
-        ) {
+        if let Some(f) = side_face(b.west, Side::West, p.factor * m.flow.u[q], src[q], m.wet[q], cx2, sums) {
             fx[0] = f;
         }
         if let Some(f) = side_face(
@@ -304,75 +312,81 @@ fn block<K: LimiterKernel, const MASKED: bool>(
         ) {
             fx[nx] = f;
         }
-        y_faces::<K, MASKED>(m, src, j + 1, p.factor, fyn);
-        if j + 1 == ny {
+        let c = &src[q..q + nx];
+        let bs = &base[q..q + nx];
+        let o = &mut chunk[r * s + 2..r * s + 2 + nx];
+        let (fxw, fxe) = (&fx[..nx], &fx[1..nx + 1]);
+        let fs = &mut fys[..nx];
+        let update = |i: usize, fs_i: f64, fn_i: f64| -> f64 {
+            let v = c[i] - dtdx * (fxe[i] - fxw[i]) - dtdy * (fn_i - fs_i);
+            if BASE {
+                p.alpha * bs[i] + p.beta * v
+            } else {
+                p.beta * v
+            }
+        };
+        if j + 1 == ny && b.north != SideKind::Periodic {
+            // North side row: side fluxes first, then the update.
+            y_faces::<K, MASKED>(m, src, j + 1, p.factor, fyn);
             let qn = g.idx(0, ny as isize);
             side_row(
                 b.north,
                 Side::North,
                 &m.flow.v[qn..qn + nx],
-                &src[q..q + nx],
+                c,
                 &m.wet[q..q + nx],
                 p.factor,
                 cy2,
                 fyn,
                 sums,
             );
-        }
-        // Update.
-        let c = &src[q..q + nx];
-        let o = &mut chunk[r * s + 2..r * s + 2 + nx];
-        let (fxw, fxe) = (&fx[..nx], &fx[1..nx + 1]);
-        let (fs, fn_) = (&fys[..nx], &fyn[..nx]);
-        if p.alpha == 0.0 {
+            let fnr = &fyn[..nx];
+            let mut bad = false;
             for i in 0..nx {
-                o[i] = p.beta * (c[i] - dtdx * (fxe[i] - fxw[i]) - dtdy * (fn_[i] - fs[i]));
+                let v = update(i, fs[i], fnr[i]);
+                bad |= !(v.abs() <= limit);
+                o[i] = v;
             }
+            sums.bad |= bad;
+            fs.copy_from_slice(fnr);
         } else {
-            let bs = &base[q..q + nx];
+            // Fused: each north face flux is computed, used, and kept as the next south flux.
+            let y = YRows::new(m, src, j + 1).cut(nx);
+            let mut bad = false;
             for i in 0..nx {
-                o[i] = p.alpha * bs[i]
-                    + p.beta * (c[i] - dtdx * (fxe[i] - fxw[i]) - dtdy * (fn_[i] - fs[i]));
+                let fn_i = y.flux::<K, MASKED>(i, p.factor, coef_y);
+                let v = update(i, fs[i], fn_i);
+                bad |= !(v.abs() <= limit);
+                o[i] = v;
+                fs[i] = fn_i;
             }
+            sums.bad |= bad;
         }
         if p.final_stage {
-            let (sum, max_abs) = row_sum_max(o);
-            sums.sum.add(sum);
-            sums.max_abs = sums.max_abs.max(max_abs);
-            if !sum.is_finite() {
-                sums.max_abs = f64::INFINITY;
-            }
             if p.decay != 1.0 {
+                sums.sum.add(row_sum(o));
                 for x in o.iter_mut() {
                     *x *= p.decay;
                 }
             }
         }
-        std::mem::swap(fys, fyn);
     }
 }
 
-/// Sum and largest |x| of a row, eight lanes at a time (vectorises; the row is in L1).
+/// Sum of a row, eight lanes at a time (vectorises; the row is in L1).
 #[inline]
-fn row_sum_max(xs: &[f64]) -> (f64, f64) {
+fn row_sum(xs: &[f64]) -> f64 {
     let mut acc = [0.0f64; 8];
-    let mut mx = [0.0f64; 8];
     let chunks = xs.chunks_exact(8);
     let rest = chunks.remainder();
     for ch in chunks {
         for k in 0..8 {
             acc[k] += ch[k];
-            mx[k] = mx[k].max(ch[k].abs());
         }
     }
     let mut sum = Neumaier::default();
-    for &a in &acc {
+    for &a in acc.iter().chain(rest) {
         sum.add(a);
     }
-    let mut m = mx.iter().fold(0.0f64, |a, &b| a.max(b));
-    for &x in rest {
-        sum.add(x);
-        m = m.max(x.abs());
-    }
-    (sum.value(), m)
+    sum.value()
 }
