@@ -2,10 +2,19 @@
 //!
 //! - [`atomic`]: atomic file replacement ([`write_atomic`], [`write_atomic_with`],
 //!   [`AtomicFile`]), used by every writer below.
+//! - [`colour`]: the project's own colour ramps ([`Ramp`], [`ramp_rgb`]),
+//!   [`ColourScale`] and [`normalise`], the land shade [`LAND_RGB`].
+//! - [`frame`]: PNG concentration frames ([`FrameSpec`], [`render_frame`],
+//!   [`write_frame_png`], [`frame_layout`], [`format_time`]).
 //! - [`error`]: [`OutputError`], naming the file in every variant.
 
 pub mod atomic;
+pub mod colour;
 pub mod error;
+pub mod frame;
+mod text;
 
 pub use atomic::{write_atomic, write_atomic_with, AtomicFile};
+pub use colour::{normalise, ramp_rgb, ColourScale, Ramp, LAND_RGB, NAN_RGB};
 pub use error::OutputError;
+pub use frame::{format_time, frame_layout, render_frame, write_frame_png, FrameLayout, FrameSpec};
