@@ -9,6 +9,7 @@
 //! - [`netcdf`]: CF-1.8 NetCDF-3 field files ([`FieldsWriter`], [`FieldMeta`],
 //!   [`FILL_VALUE`]), written record by record.
 //! - [`error`]: [`OutputError`], naming the file in every variant.
+//! - `text` (private): antialiased text drawing with the embedded DejaVu Sans.
 
 pub mod atomic;
 pub mod colour;
