@@ -1,1 +1,25 @@
-//! Output writers (frames, NetCDF, atomic files): filled in by the output work.
+//! Output writers for tinct. This module depends on no other tinct module.
+//!
+//! - [`atomic`]: atomic file replacement ([`write_atomic`], [`write_atomic_with`],
+//!   [`AtomicFile`]), used by every writer below.
+//! - [`colour`]: the project's own colour ramps ([`Ramp`], [`ramp_rgb`]),
+//!   [`ColourScale`] and [`normalise`], the land shade [`LAND_RGB`].
+//! - [`frame`]: PNG concentration frames ([`FrameSpec`], [`render_frame`],
+//!   [`write_frame_png`], [`frame_layout`], [`format_time`]).
+//! - [`netcdf`]: CF-1.8 NetCDF-3 field files ([`FieldsWriter`], [`FieldMeta`],
+//!   [`FILL_VALUE`]), written record by record.
+//! - [`error`]: [`OutputError`], naming the file in every variant.
+//! - `text` (private): antialiased text drawing with the embedded DejaVu Sans.
+
+pub mod atomic;
+pub mod colour;
+pub mod error;
+pub mod frame;
+pub mod netcdf;
+mod text;
+
+pub use atomic::{write_atomic, write_atomic_with, AtomicFile};
+pub use colour::{normalise, ramp_rgb, ColourScale, Ramp, LAND_RGB, NAN_RGB};
+pub use error::OutputError;
+pub use frame::{format_time, frame_layout, render_frame, write_frame_png, FrameLayout, FrameSpec};
+pub use netcdf::{FieldMeta, FieldsWriter, FILL_VALUE};
