@@ -124,9 +124,7 @@ pub fn write_atomic_with(
         .map_err(|e| OutputError::io(&tmp, e))?;
     let mut w = BufWriter::new(file);
     f(&mut w).map_err(|e| OutputError::io(&tmp, e))?;
-    let file = w
-        .into_inner()
-        .map_err(|e| OutputError::io(&tmp, e.into_error()))?;
+    let file = w.into_inner().map_err(|e| OutputError::io(&tmp, e.into_error()))?;
     file.sync_all().map_err(|e| OutputError::io(&tmp, e))?;
     drop(file);
     atomic.commit()
@@ -178,12 +176,7 @@ mod tests {
         let p = d.path().join("c.nc");
         {
             let a = AtomicFile::create(&p).unwrap();
-            let name = a
-                .path_tmp()
-                .file_name()
-                .unwrap()
-                .to_string_lossy()
-                .into_owned();
+            let name = a.path_tmp().file_name().unwrap().to_string_lossy().into_owned();
             assert!(name.starts_with(".c.nc.tmp-"), "{name}");
             std::fs::write(a.path_tmp(), b"data").unwrap();
             assert!(a.path_tmp().exists());

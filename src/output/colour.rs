@@ -70,12 +70,7 @@ fn ramp_lab(ramp: Ramp, t: f64) -> [f64; 3] {
 }
 
 /// Piecewise-linear interpolation through control points ordered by `pos`.
-fn interpolate<P>(
-    points: &[P],
-    t: f64,
-    pos: impl Fn(&P) -> f64,
-    lab: impl Fn(&P) -> [f64; 3],
-) -> [f64; 3] {
+fn interpolate<P>(points: &[P], t: f64, pos: impl Fn(&P) -> f64, lab: impl Fn(&P) -> [f64; 3]) -> [f64; 3] {
     for w in points.windows(2) {
         let (t0, t1) = (pos(&w[0]), pos(&w[1]));
         if t <= t1 {
@@ -299,18 +294,9 @@ mod tests {
     #[test]
     fn nan_is_flagged_and_t_is_clamped() {
         assert_eq!(ramp_rgb(Ramp::Sequential, f64::NAN), NAN_RGB);
-        assert_eq!(
-            ramp_rgb(Ramp::Sequential, -3.0),
-            ramp_rgb(Ramp::Sequential, 0.0)
-        );
-        assert_eq!(
-            ramp_rgb(Ramp::Diverging, 7.0),
-            ramp_rgb(Ramp::Diverging, 1.0)
-        );
-        assert_ne!(
-            ramp_rgb(Ramp::Sequential, 0.0),
-            ramp_rgb(Ramp::Sequential, 1.0)
-        );
+        assert_eq!(ramp_rgb(Ramp::Sequential, -3.0), ramp_rgb(Ramp::Sequential, 0.0));
+        assert_eq!(ramp_rgb(Ramp::Diverging, 7.0), ramp_rgb(Ramp::Diverging, 1.0));
+        assert_ne!(ramp_rgb(Ramp::Sequential, 0.0), ramp_rgb(Ramp::Sequential, 1.0));
     }
 
     #[test]

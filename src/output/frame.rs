@@ -140,16 +140,7 @@ pub fn frame_layout(nx: usize, ny: usize) -> FrameLayout {
     width += width % 2;
     let map_x = (width - map_w) / 2;
     let map_y = TITLE_BAND;
-    let mut height = map_y
-        + map_h
-        + BAR_GAP
-        + BAR_H
-        + TICK_LEN
-        + 1
-        + TICK_LINE
-        + CAPTION_GAP
-        + CAPTION_LINE
-        + BOTTOM;
+    let mut height = map_y + map_h + BAR_GAP + BAR_H + TICK_LEN + 1 + TICK_LINE + CAPTION_GAP + CAPTION_LINE + BOTTOM;
     height += height % 2;
     FrameLayout {
         width,
@@ -190,12 +181,7 @@ pub fn format_time(seconds: f64) -> String {
     }
     if minutes < 1e15 {
         let m = minutes as u64;
-        return format!(
-            "{sign}{} d {:02} h {:02} min",
-            m / 1440,
-            (m % 1440) / 60,
-            m % 60
-        );
+        return format!("{sign}{} d {:02} h {:02} min", m / 1440, (m % 1440) / 60, m % 60);
     }
     format!("{sign}{s:.3e} s")
 }
@@ -223,9 +209,7 @@ fn decimals_for(step: f64) -> usize {
 /// labels of one bar share one style: fixed-point when every nonzero value
 /// lies in [1e-3, 1e5), scientific (`2.5e6`, `1e-4`) otherwise.
 fn format_ticks(values: &[f64], resolution: impl Fn(f64) -> f64) -> Vec<String> {
-    let fixed = values
-        .iter()
-        .all(|v| *v == 0.0 || (1e-3..1e5).contains(&v.abs()));
+    let fixed = values.iter().all(|v| *v == 0.0 || (1e-3..1e5).contains(&v.abs()));
     values
         .iter()
         .map(|&v| {
@@ -277,10 +261,7 @@ fn ticks(lo: f64, hi: f64, scale: ColourScale) -> Vec<(f64, String)> {
         let n = e1 - e0 + 1;
         if n >= 2 {
             let step = ((n + 4) / 5).max(1);
-            let vals: Vec<f64> = (e0..=e1)
-                .step_by(step as usize)
-                .map(|e| 10f64.powi(e))
-                .collect();
+            let vals: Vec<f64> = (e0..=e1).step_by(step as usize).map(|e| 10f64.powi(e)).collect();
             let labels = format_ticks(&vals, |v| v);
             return vals.into_iter().zip(labels).collect();
         }
@@ -438,9 +419,7 @@ fn render_inner(spec: &FrameSpec) -> Result<RgbImage, String> {
     // Colour bar.
     let strip = layout.strip();
     let denom = (strip.bar_w - 1) as f64;
-    let row: Vec<u8> = (0..strip.bar_w)
-        .flat_map(|bx| lut.get(bx as f64 / denom))
-        .collect();
+    let row: Vec<u8> = (0..strip.bar_w).flat_map(|bx| lut.get(bx as f64 / denom)).collect();
     let stride = layout.width as usize * 3;
     for y in strip.bar_y..strip.bar_y + BAR_H {
         let start = y as usize * stride + strip.bar_x as usize * 3;
@@ -466,14 +445,7 @@ fn render_inner(spec: &FrameSpec) -> Result<RgbImage, String> {
         }
         let w = text_width(&label, TICK_PX);
         let lx = (x as f32 - w / 2.0).clamp(2.0, (layout.width as f32 - w - 2.0).max(2.0));
-        draw_text(
-            &mut img,
-            &label,
-            lx,
-            strip.tick_label_y as f32,
-            TICK_PX,
-            INK,
-        );
+        draw_text(&mut img, &label, lx, strip.tick_label_y as f32, TICK_PX, INK);
     }
 
     // Caption: tracer [units] on the left, time on the right.
@@ -512,14 +484,7 @@ fn render_inner(spec: &FrameSpec) -> Result<RgbImage, String> {
 }
 
 /// Fills the map area, north up, one row of pixels per task.
-fn draw_map(
-    img: &mut RgbImage,
-    layout: &FrameLayout,
-    spec: &FrameSpec,
-    lut: &RampLut,
-    lo: f64,
-    hi: f64,
-) {
+fn draw_map(img: &mut RgbImage, layout: &FrameLayout, spec: &FrameSpec, lut: &RampLut, lo: f64, hi: f64) {
     let cols = index_map(spec.nx, layout.map_w);
     let rows = index_map(spec.ny, layout.map_h);
     let stride = layout.width as usize * 3;
@@ -528,23 +493,20 @@ fn draw_map(
     let buf: &mut [u8] = img.as_mut();
     let map_rows = &mut buf[y0 * stride..(y0 + layout.map_h as usize) * stride];
     let (nx, ny) = (spec.nx, spec.ny);
-    map_rows
-        .par_chunks_mut(stride)
-        .enumerate()
-        .for_each(|(py, line)| {
-            // Top pixel row shows the northernmost grid row.
-            let j = ny - 1 - rows[py];
-            let vals = &spec.values[j * nx..(j + 1) * nx];
-            let wet = spec.wet.map(|w| &w[j * nx..(j + 1) * nx]);
-            let out = &mut line[x0..x0 + cols.len() * 3];
-            for (px, &i) in out.chunks_exact_mut(3).zip(cols.iter()) {
-                let rgb = match wet {
-                    Some(w) if !w[i] => LAND_RGB,
-                    _ => lut.get(normalise(vals[i], lo, hi, spec.scale)),
-                };
-                px.copy_from_slice(&rgb);
-            }
-        });
+    map_rows.par_chunks_mut(stride).enumerate().for_each(|(py, line)| {
+        // Top pixel row shows the northernmost grid row.
+        let j = ny - 1 - rows[py];
+        let vals = &spec.values[j * nx..(j + 1) * nx];
+        let wet = spec.wet.map(|w| &w[j * nx..(j + 1) * nx]);
+        let out = &mut line[x0..x0 + cols.len() * 3];
+        for (px, &i) in out.chunks_exact_mut(3).zip(cols.iter()) {
+            let rgb = match wet {
+                Some(w) if !w[i] => LAND_RGB,
+                _ => lut.get(normalise(vals[i], lo, hi, spec.scale)),
+            };
+            px.copy_from_slice(&rgb);
+        }
+    });
 }
 
 fn put(img: &mut RgbImage, x: i64, y: i64, rgb: [u8; 3]) {
@@ -573,12 +535,7 @@ pub fn write_frame_png(path: &Path, spec: &FrameSpec) -> Result<(), OutputError>
     let img = render_inner(spec).map_err(|m| OutputError::invalid(path, m))?;
     let mut bytes = Vec::with_capacity(img.as_raw().len() / 4);
     PngEncoder::new_with_quality(&mut bytes, CompressionType::Fast, FilterType::Adaptive)
-        .write_image(
-            img.as_raw(),
-            img.width(),
-            img.height(),
-            image::ExtendedColorType::Rgb8,
-        )
+        .write_image(img.as_raw(), img.width(), img.height(), image::ExtendedColorType::Rgb8)
         .map_err(|source| OutputError::Png {
             path: path.to_path_buf(),
             source,
@@ -607,14 +564,7 @@ mod tests {
     }
 
     /// Pixel at the centre of cell (i, j) (j counted from the south).
-    fn cell_pixel(
-        img: &RgbImage,
-        l: &FrameLayout,
-        nx: usize,
-        ny: usize,
-        i: usize,
-        j: usize,
-    ) -> [u8; 3] {
+    fn cell_pixel(img: &RgbImage, l: &FrameLayout, nx: usize, ny: usize, i: usize, j: usize) -> [u8; 3] {
         let x = l.map_x + ((2 * i + 1) as u32 * l.map_w) / (2 * nx as u32);
         let y_from_south = ((2 * j + 1) as u32 * l.map_h) / (2 * ny as u32);
         let y = l.map_y + l.map_h - 1 - y_from_south;
@@ -632,10 +582,7 @@ mod tests {
         assert_eq!(l.width % 2, 0);
         assert_eq!(l.height % 2, 0);
         // Top-left map pixel is the north row (maximum), bottom-left the south row.
-        assert_eq!(
-            img.get_pixel(l.map_x, l.map_y).0,
-            ramp_rgb(Ramp::Sequential, 1.0)
-        );
+        assert_eq!(img.get_pixel(l.map_x, l.map_y).0, ramp_rgb(Ramp::Sequential, 1.0));
         assert_eq!(
             img.get_pixel(l.map_x, l.map_y + l.map_h - 1).0,
             ramp_rgb(Ramp::Sequential, 0.0)
@@ -658,15 +605,9 @@ mod tests {
             let l = frame_layout(nx, ny);
             let (w, h) = (f64::from(l.map_w), f64::from(l.map_h));
             if nx >= ny {
-                assert!(
-                    (h - w * ny as f64 / nx as f64).abs() <= 1.0,
-                    "{nx}x{ny}: {l:?}"
-                );
+                assert!((h - w * ny as f64 / nx as f64).abs() <= 1.0, "{nx}x{ny}: {l:?}");
             } else {
-                assert!(
-                    (w - h * nx as f64 / ny as f64).abs() <= 1.0,
-                    "{nx}x{ny}: {l:?}"
-                );
+                assert!((w - h * nx as f64 / ny as f64).abs() <= 1.0, "{nx}x{ny}: {l:?}");
             }
             let long = l.map_w.max(l.map_h);
             assert!(long <= 1000, "{nx}x{ny}: {l:?}");
@@ -696,10 +637,7 @@ mod tests {
             cell_pixel(&img, &l, nx, ny, nx - 2, ny - 1),
             ramp_rgb(Ramp::Sequential, 1.0)
         );
-        assert_eq!(
-            cell_pixel(&img, &l, nx, ny, 0, 0),
-            ramp_rgb(Ramp::Sequential, 0.0)
-        );
+        assert_eq!(cell_pixel(&img, &l, nx, ny, 0, 0), ramp_rgb(Ramp::Sequential, 0.0));
         assert_ne!(cell_pixel(&img, &l, nx, ny, 5, 3), LAND_RGB);
     }
 
@@ -728,10 +666,7 @@ mod tests {
         let (ra, rb) = (region(&ia), region(&ib));
         let inked = |r: &[[u8; 3]]| r.iter().filter(|p| **p != BACKGROUND).count();
         assert!(inked(&ra) > 20, "no text pixels for the time label");
-        assert!(
-            inked(&rb) > inked(&ra),
-            "longer label should ink more pixels"
-        );
+        assert!(inked(&rb) > inked(&ra), "longer label should ink more pixels");
         assert_ne!(ra, rb);
         // Tick labels below the bar are drawn too.
         let mut tick_ink = 0;
@@ -754,21 +689,11 @@ mod tests {
         let l = frame_layout(5, 1);
         let lut = RampLut::new(Ramp::Sequential);
         for i in 0..5 {
-            assert_eq!(
-                cell_pixel(&img, &l, 5, 1, i, 0),
-                lut.get(i as f64 / 4.0),
-                "cell {i}"
-            );
+            assert_eq!(cell_pixel(&img, &l, 5, 1, i, 0), lut.get(i as f64 / 4.0), "cell {i}");
         }
-        let labels: Vec<String> = ticks(1e-3, 10.0, ColourScale::Log)
-            .into_iter()
-            .map(|t| t.1)
-            .collect();
+        let labels: Vec<String> = ticks(1e-3, 10.0, ColourScale::Log).into_iter().map(|t| t.1).collect();
         assert_eq!(labels, ["0.001", "0.01", "0.1", "1", "10"]);
-        let labels: Vec<String> = ticks(1e-8, 1.0, ColourScale::Log)
-            .into_iter()
-            .map(|t| t.1)
-            .collect();
+        let labels: Vec<String> = ticks(1e-8, 1.0, ColourScale::Log).into_iter().map(|t| t.1).collect();
         assert_eq!(labels, ["1e-8", "1e-6", "1e-4", "1e-2", "1"]);
     }
 
@@ -789,10 +714,7 @@ mod tests {
         assert!((3..=5).contains(&labels.len()), "{labels:?}");
         assert_eq!(labels, ["0.0", "0.5", "1.0"]);
         let t = linear_ticks(-0.3, 0.7);
-        assert!(
-            t.iter().all(|(_, s)| s.len() <= 4 && !s.contains("0000")),
-            "{t:?}"
-        );
+        assert!(t.iter().all(|(_, s)| s.len() <= 4 && !s.contains("0000")), "{t:?}");
         assert!(t.iter().any(|(_, s)| s == "0.0"), "{t:?}");
         assert!(!t
             .iter()
@@ -819,10 +741,7 @@ mod tests {
         assert_eq!(format_time(6.0 * 3600.0 + 5.0 * 60.0), "6 h 05 min");
         assert_eq!(format_time(3599.7), "1 h 00 min");
         assert_eq!(format_time(59.99), "1 min 00 s");
-        assert_eq!(
-            format_time(2.0 * 86400.0 + 3.0 * 3600.0 + 600.0),
-            "2 d 03 h 10 min"
-        );
+        assert_eq!(format_time(2.0 * 86400.0 + 3.0 * 3600.0 + 600.0), "2 d 03 h 10 min");
         assert_eq!(format_time(-30.0), "-30 s");
         assert_eq!(format_time(f64::NAN), "?");
     }
@@ -878,17 +797,10 @@ mod tests {
         assert_eq!(back.dimensions(), (l.width, l.height));
         assert_eq!((l.map_w, l.map_h), (1000, 333));
         // West edge lowest, east edge highest.
-        assert_eq!(
-            back.get_pixel(l.map_x, l.map_y + 5).0,
-            ramp_rgb(Ramp::Sequential, 0.0)
-        );
+        assert_eq!(back.get_pixel(l.map_x, l.map_y + 5).0, ramp_rgb(Ramp::Sequential, 0.0));
         let east = back.get_pixel(l.map_x + l.map_w - 1, l.map_y + 5).0;
-        assert!(
-            srgb_dist(east, ramp_rgb(Ramp::Sequential, 1.0)) <= 6,
-            "{east:?}"
-        );
-        let err =
-            write_frame_png(&d.path().join("x.png"), &spec(2, 2, &values[..3], None)).unwrap_err();
+        assert!(srgb_dist(east, ramp_rgb(Ramp::Sequential, 1.0)) <= 6, "{east:?}");
+        let err = write_frame_png(&d.path().join("x.png"), &spec(2, 2, &values[..3], None)).unwrap_err();
         assert!(err.to_string().contains("x.png"), "{err}");
     }
 
@@ -901,9 +813,7 @@ mod tests {
     #[ignore]
     fn render_timing() {
         for n in [1024usize, 4096] {
-            let values: Vec<f64> = (0..n * n)
-                .map(|k| ((k % n) as f64 * 0.01).sin().abs())
-                .collect();
+            let values: Vec<f64> = (0..n * n).map(|k| ((k % n) as f64 * 0.01).sin().abs()).collect();
             let wet: Vec<bool> = (0..n * n).map(|k| k % 97 != 0).collect();
             let mut times = Vec::new();
             for _ in 0..3 {
@@ -913,10 +823,7 @@ mod tests {
                 assert!(img.width() > 0);
             }
             times.sort_by(f64::total_cmp);
-            println!(
-                "render {n}x{n}: median {:.1} ms ({times:?})",
-                times[1] * 1e3
-            );
+            println!("render {n}x{n}: median {:.1} ms ({times:?})", times[1] * 1e3);
         }
     }
 }

@@ -124,13 +124,7 @@ impl FieldsWriter {
     /// coordinates. `x` has `nx` cell-centre coordinates in metres
     /// (west to east), `y` has `ny` (south to north); `n_records` is the
     /// number of time records the file will hold.
-    pub fn create(
-        path: &Path,
-        x: &[f64],
-        y: &[f64],
-        n_records: usize,
-        meta: &FieldMeta,
-    ) -> Result<Self, OutputError> {
+    pub fn create(path: &Path, x: &[f64], y: &[f64], n_records: usize, meta: &FieldMeta) -> Result<Self, OutputError> {
         if x.is_empty() || y.is_empty() {
             return Err(OutputError::invalid(
                 path,
@@ -154,10 +148,7 @@ impl FieldsWriter {
             .open(atomic.path_tmp())
             .map_err(|e| OutputError::io(atomic.path_tmp(), e))?;
         let mut w = FieldsWriter {
-            sink: SharedSink(Arc::new(Mutex::new(BufWriter::with_capacity(
-                1 << 20,
-                file,
-            )))),
+            sink: SharedSink(Arc::new(Mutex::new(BufWriter::with_capacity(1 << 20, file)))),
             atomic,
             meta: OwnedMeta {
                 name: meta.name.to_string(),
@@ -249,11 +240,9 @@ impl FieldsWriter {
         f: impl FnOnce(&mut FileWriter) -> Result<(), netcdf3::WriteError>,
     ) -> Result<(), OutputError> {
         let target = self.atomic.target().to_path_buf();
-        let mut fw = FileWriter::open_seek_write(
-            &self.atomic.path_tmp().to_string_lossy(),
-            Box::new(self.sink.clone()),
-        )
-        .map_err(|e| nc_err(&target, e))?;
+        let mut fw =
+            FileWriter::open_seek_write(&self.atomic.path_tmp().to_string_lossy(), Box::new(self.sink.clone()))
+                .map_err(|e| nc_err(&target, e))?;
         fw.set_def(ds, Version::Offset64Bit, 0)
             .map_err(|e| nc_err(&target, e))?;
         f(&mut fw).map_err(|e| nc_err(&target, e))?;
@@ -261,20 +250,13 @@ impl FieldsWriter {
         // short-lived writer did not see.
         drop(fw);
         let tmp: PathBuf = self.atomic.path_tmp().to_path_buf();
-        self.sink
-            .with(|w| w.flush())
-            .map_err(|e| OutputError::io(tmp, e))
+        self.sink.with(|w| w.flush()).map_err(|e| OutputError::io(tmp, e))
     }
 
     /// Appends one record: `values` has `ny * nx` entries, row-major with
     /// row 0 the southern row; cells with `wet[k] == false` and NaN values
     /// are written as [`FILL_VALUE`].
-    pub fn write_record(
-        &mut self,
-        time_s: f64,
-        values: &[f64],
-        wet: Option<&[bool]>,
-    ) -> Result<(), OutputError> {
+    pub fn write_record(&mut self, time_s: f64, values: &[f64], wet: Option<&[bool]>) -> Result<(), OutputError> {
         let n = self.nx * self.ny;
         let target = self.atomic.target();
         if self.written >= self.n_records {
@@ -300,18 +282,13 @@ impl FieldsWriter {
         let mut record = std::mem::take(&mut self.record);
         record.clear();
         match wet {
-            Some(w) => record.extend(values.iter().zip(w).map(|(&v, &wet)| {
-                if wet && !v.is_nan() {
-                    v
-                } else {
-                    FILL_VALUE
-                }
-            })),
-            None => record.extend(
+            Some(w) => record.extend(
                 values
                     .iter()
-                    .map(|&v| if v.is_nan() { FILL_VALUE } else { v }),
+                    .zip(w)
+                    .map(|(&v, &wet)| if wet && !v.is_nan() { v } else { FILL_VALUE }),
             ),
+            None => record.extend(values.iter().map(|&v| if v.is_nan() { FILL_VALUE } else { v })),
         }
         let result = self.put_record(self.written, time_s, &record);
         self.record = record;
@@ -407,10 +384,7 @@ mod tests {
         assert_eq!(ds.dim_size("y"), Some(ny));
         assert_eq!(ds.dim_size("x"), Some(nx));
         assert_eq!(ds.get_var("c").unwrap().dim_names(), ["time", "y", "x"]);
-        assert_eq!(
-            ds.get_global_attr_as_string("Conventions").unwrap(),
-            "CF-1.8"
-        );
+        assert_eq!(ds.get_global_attr_as_string("Conventions").unwrap(), "CF-1.8");
         assert_eq!(ds.get_global_attr_as_string("title").unwrap(), "test run");
         assert_eq!(
             ds.get_global_attr_as_string("source").unwrap(),
@@ -422,24 +396,15 @@ mod tests {
             ds.get_var_attr_as_string("c", "standard_name").unwrap(),
             "mass_concentration_of_dye_in_sea_water"
         );
-        assert_eq!(
-            ds.get_var_attr_f64("c", "_FillValue").unwrap(),
-            [FILL_VALUE]
-        );
+        assert_eq!(ds.get_var_attr_f64("c", "_FillValue").unwrap(), [FILL_VALUE]);
         assert_eq!(ds.get_var_attr_as_string("x", "units").unwrap(), "m");
         assert_eq!(ds.get_var_attr_as_string("y", "axis").unwrap(), "Y");
         assert_eq!(
             ds.get_var_attr_as_string("x", "standard_name").unwrap(),
             "projection_x_coordinate"
         );
-        assert_eq!(
-            ds.get_var_attr_as_string("time", "units").unwrap(),
-            TIME_UNITS
-        );
-        assert_eq!(
-            ds.get_var_attr_as_string("time", "calendar").unwrap(),
-            "standard"
-        );
+        assert_eq!(ds.get_var_attr_as_string("time", "units").unwrap(), TIME_UNITS);
+        assert_eq!(ds.get_var_attr_as_string("time", "calendar").unwrap(), "standard");
         assert!(ds
             .get_var_attr_as_string("time", "comment")
             .unwrap()

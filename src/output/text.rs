@@ -35,14 +35,7 @@ pub(crate) fn text_width(text: &str, px: f32) -> f32 {
 
 /// Draws `text` with its top-left corner (of the line box) at `(x, y_top)`.
 /// Pixels outside the image are clipped. Returns the advance width.
-pub(crate) fn draw_text(
-    img: &mut RgbImage,
-    text: &str,
-    x: f32,
-    y_top: f32,
-    px: f32,
-    colour: [u8; 3],
-) -> f32 {
+pub(crate) fn draw_text(img: &mut RgbImage, text: &str, x: f32, y_top: f32, px: f32, colour: [u8; 3]) -> f32 {
     let Some(font) = font() else { return 0.0 };
     let scaled = font.as_scaled(PxScale::from(px));
     let baseline = y_top + scaled.ascent();

@@ -362,12 +362,10 @@ fn block<K: LimiterKernel, const MASKED: bool, const BASE: bool>(
             }
             sums.bad |= bad;
         }
-        if p.final_stage {
-            if p.decay != 1.0 {
-                sums.sum.add(row_sum(o));
-                for x in o.iter_mut() {
-                    *x *= p.decay;
-                }
+        if p.final_stage && p.decay != 1.0 {
+            sums.sum.add(row_sum(o));
+            for x in o.iter_mut() {
+                *x *= p.decay;
             }
         }
     }

@@ -153,8 +153,9 @@ impl Explicit {
         let rows_per_block = ny.div_ceil(4 * threads).max(16).min(ny);
         let nblocks = ny.div_ceil(rows_per_block);
         Self {
-            a: model.zero_field(),
-            b: model.zero_field(),
+            // Filled with NaN so that any read of a value no stage wrote shows up at once.
+            a: vec![f64::NAN; model.grid.padded_len()],
+            b: vec![f64::NAN; model.grid.padded_len()],
             blocks: (0..nblocks).map(|_| Block::new(model.grid.nx)).collect(),
             rows_per_block,
         }
@@ -448,8 +449,8 @@ impl Simulation {
         self.model.mass(&self.state.c)
     }
 
-    /// Measures mass, min and max now and books a budget row.
-    pub fn budget_row(&mut self) -> BudgetRow {
+    /// Measures mass, min and max now and builds a budget row.
+    pub fn budget_row(&self) -> BudgetRow {
         let mass = self.mass();
         let (lo, hi) = crate::field::wet_min_max(&self.model.grid, &self.model.mask, &self.state.c);
         let s = &self.state;
