@@ -138,6 +138,31 @@ fn swirl_returns_home() {
     );
 }
 
+/// The puff scenario's plume passes both receptors above their thresholds within the run, and
+/// peaks later at the one further down the current (its receptors are placed meaningfully).
+#[test]
+fn puff_reaches_its_receptors() {
+    let s = load(&root().join("scenarios/gaussian-puff.toml"), &[]).unwrap();
+    let model = s.build_model().unwrap();
+    let c0 = model.zero_field();
+    let mut sim = tinct::step::Simulation::new(model, s.scheme, c0).unwrap();
+    let mut peaks = vec![(0.0f64, 0.0f64); s.receptors.len()];
+    sim.advance_to(s.run.end, |sim| {
+        for (r, peak) in s.receptors.iter().zip(peaks.iter_mut()) {
+            let c = sim.value_at(r.at.0, r.at.1).unwrap();
+            if c > peak.0 {
+                *peak = (c, sim.state.t);
+            }
+        }
+        ControlFlow::Continue(())
+    })
+    .unwrap();
+    for (r, (c, _)) in s.receptors.iter().zip(&peaks) {
+        assert!(*c > r.threshold.unwrap(), "{}: peak {c}", r.name);
+    }
+    assert!(peaks[1].1 > peaks[0].1, "{peaks:?}");
+}
+
 /// `resolved_toml` gives back an equal scenario, for every shipped scenario and for a file that
 /// exercises the other kinds (land image, fixed sides, continuous source, tide, fixed dt).
 #[test]
