@@ -1,0 +1,55 @@
+//! The land mask image: a PNG whose dark pixels (luminance below one half) are land, top row
+//! the grid's north edge, resampled to the grid by nearest pixel when the sizes differ.
+
+use crate::grid::{Grid, Mask};
+use std::path::Path;
+
+/// Largest accepted image side, pixels (a mask needs no more than one pixel per cell).
+const MAX_SIDE_PX: u32 = 1 << 14;
+
+/// Largest relative difference between the image's and the grid's aspect ratios.
+const ASPECT_TOLERANCE: f64 = 0.01;
+
+/// Reads the image at `path` and builds the grid's mask; the error is a message for the key
+/// `grid.land`.
+pub(super) fn load_mask(path: &Path, grid: &Grid) -> Result<Mask, String> {
+    let reader = image::ImageReader::open(path).map_err(|e| format!("cannot open {}: {e}", path.display()))?;
+    let mut reader = reader
+        .with_guessed_format()
+        .map_err(|e| format!("cannot read {}: {e}", path.display()))?;
+    let mut limits = image::Limits::default();
+    limits.max_image_width = Some(MAX_SIDE_PX);
+    limits.max_image_height = Some(MAX_SIDE_PX);
+    limits.max_alloc = Some(1 << 30);
+    reader.limits(limits);
+    let img = reader
+        .decode()
+        .map_err(|e| format!("cannot decode {} as an image (a PNG is expected): {e}", path.display()))?;
+    let luma = img.to_luma8();
+    let (w, h) = luma.dimensions();
+    if w == 0 || h == 0 {
+        return Err(format!("{} is an empty image", path.display()));
+    }
+    let image_aspect = w as f64 / h as f64;
+    let grid_aspect = grid.lx() / grid.ly();
+    if (image_aspect / grid_aspect - 1.0).abs() > ASPECT_TOLERANCE {
+        return Err(format!(
+            "{} is {w} by {h} pixels (aspect {image_aspect:.4}) but the grid is {} by {} m (aspect {grid_aspect:.4}): \
+             the aspects must agree within 1%",
+            path.display(),
+            grid.lx(),
+            grid.ly()
+        ));
+    }
+    let mut wet = Vec::with_capacity(grid.cells());
+    for j in 0..grid.ny {
+        // Row 0 of the grid is the south edge, the image's last row.
+        let py = (((grid.ny - 1 - j) as f64 + 0.5) * h as f64 / grid.ny as f64) as u32;
+        for i in 0..grid.nx {
+            let px = ((i as f64 + 0.5) * w as f64 / grid.nx as f64) as u32;
+            let l = luma.get_pixel(px.min(w - 1), py.min(h - 1)).0[0];
+            wet.push(f64::from(l) >= 127.5);
+        }
+    }
+    Mask::from_wet(grid, wet).map_err(|_| format!("{} makes every cell land: no water left", path.display()))
+}
