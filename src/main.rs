@@ -15,6 +15,26 @@ struct Cli {
 
 #[derive(Subcommand)]
 enum Command {
+    /// Run a scenario and write frames, logs, fields and a summary to `<dir>/<name>/`.
+    Run {
+        /// The scenario file (TOML).
+        scenario: PathBuf,
+        /// Output folder (default: the scenario's `output.dir`, else `out`); results go to
+        /// `<DIR>/<name>/`.
+        #[arg(long)]
+        out: Option<PathBuf>,
+        /// Override a scenario key, e.g. `--set scheme.convection=superbee` (repeatable).
+        #[arg(long = "set", value_name = "KEY=VALUE")]
+        sets: Vec<String>,
+        /// No progress bar or warnings on stderr.
+        #[arg(long)]
+        quiet: bool,
+    },
+    /// Print a ready-to-run example scenario.
+    Example {
+        /// Example name; omit to list them.
+        name: Option<String>,
+    },
     /// Throughput of the explicit step (million cell updates per second) on the shared
     /// benchmark problem, checked against its reference values first.
     Bench {
@@ -55,6 +75,13 @@ fn bad_input(message: impl Into<String>) -> Failure {
 fn main() -> ExitCode {
     let cli = Cli::parse();
     let result = match cli.command {
+        Command::Run {
+            scenario,
+            out,
+            sets,
+            quiet,
+        } => run(&scenario, out, &sets, quiet),
+        Command::Example { name } => example(name.as_deref()),
         Command::Bench {
             sizes,
             schemes,
@@ -153,4 +180,117 @@ fn bench(
         }
     }
     Ok(())
+}
+
+fn example(name: Option<&str>) -> Result<(), Failure> {
+    let names = tinct::scenario::EXAMPLES.join(", ");
+    match name {
+        None => {
+            println!("examples: {names}");
+            Ok(())
+        }
+        Some(n) => match tinct::scenario::example(n) {
+            Some(text) => {
+                print!("{text}");
+                Ok(())
+            }
+            None => Err(bad_input(format!("unknown example '{n}': allowed are {names}"))),
+        },
+    }
+}
+
+fn run(path: &std::path::Path, out: Option<PathBuf>, sets: &[String], quiet: bool) -> Result<(), Failure> {
+    use indicatif::{ProgressBar, ProgressStyle};
+    use tinct::run::{execute, RunFailure};
+    let scn = tinct::scenario::load(path, sets).map_err(|e| bad_input(e.to_string()))?;
+    let base = out.unwrap_or_else(|| scn.output.dir.clone());
+    let bar = if quiet {
+        ProgressBar::hidden()
+    } else {
+        ProgressBar::new(1000)
+    };
+    bar.set_style(
+        ProgressStyle::with_template("{spinner} [{bar:32}] {msg}  elapsed {elapsed}, about {eta} to go")
+            .expect("valid template")
+            .progress_chars("=> "),
+    );
+    let mut last_draw = std::time::Instant::now();
+    let mut progress = |p: tinct::run::Progress| {
+        if last_draw.elapsed().as_millis() >= 100 || p.t >= p.end {
+            last_draw = std::time::Instant::now();
+            bar.set_position((p.t / p.end * 1000.0).round() as u64);
+            bar.set_message(format!(
+                "t = {} of {}, step {}, dt {:.3e} s",
+                fmt_t(p.t),
+                fmt_t(p.end),
+                p.step,
+                p.dt
+            ));
+        }
+    };
+    let result = execute(&scn, &base, &mut progress);
+    bar.finish_and_clear();
+    match result {
+        Ok(outcome) => {
+            print_outcome(&outcome);
+            Ok(())
+        }
+        Err(RunFailure::BadInput(m)) => Err(bad_input(m)),
+        Err(RunFailure::Output(e)) => Err(Failure {
+            code: 1,
+            message: format!("writing results: {e}"),
+        }),
+        Err(RunFailure::Diverged { error, outcome }) => {
+            print_outcome(&outcome);
+            Err(Failure {
+                code: 1,
+                message: format!("{error}\nthe results up to that step are in {}", outcome.dir.display()),
+            })
+        }
+    }
+}
+
+fn fmt_t(t: f64) -> String {
+    tinct::output::format_time(t)
+}
+
+fn print_outcome(o: &tinct::run::RunOutcome) {
+    let s = &o.summary;
+    println!(
+        "{} ({}): {} steps to t = {}, dt {:.3e} to {:.3e} s, {:.1} s wall ({:.1} M cell updates/s)",
+        s.scenario,
+        s.status,
+        s.steps,
+        fmt_t(s.simulated_time),
+        s.dt_min,
+        s.dt_max,
+        s.wall_seconds,
+        s.cell_updates_per_second / 1e6
+    );
+    println!("  mass: start {:.6e}, end {:.6e}; added {:.4e}, in {:.4e}, out {:.4e}, decayed {:.4e}; largest budget residual {:.1e}", s.initial_mass, s.final_mass, s.added, s.inflow, s.outflow, s.decayed, s.max_abs_residual);
+    println!("  concentration: min {:.4e}, max {:.4e}", s.min_ever, s.max_ever);
+    if !s.receptors.is_empty() {
+        println!(
+            "  {:<20} {:>12} {:>12} {:>14} {:>14}",
+            "receptor", "peak", "peak at", "arrival", "above thr."
+        );
+        for r in &s.receptors {
+            let arr = r.arrival_time.map(fmt_t).unwrap_or_else(|| "-".into());
+            let above = r.time_above_threshold.map(fmt_t).unwrap_or_else(|| "-".into());
+            println!(
+                "  {:<20} {:>12.4e} {:>12} {:>14} {:>14}",
+                r.name,
+                r.peak,
+                fmt_t(r.peak_time),
+                arr,
+                above
+            );
+        }
+    }
+    println!(
+        "  results: {} (summary.json, budget.csv, receptors.csv, fields.nc, {} frames)",
+        o.dir.display(),
+        s.frames
+    );
+    println!("  caution: {}", s.caution);
 }

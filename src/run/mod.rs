@@ -1,0 +1,229 @@
+//! Running a scenario end to end: builds the model, marches it, and writes every output of
+//! DESIGN §5 into `<dir>/<name>/` (scenario as run, budget log, receptor series, frames,
+//! NetCDF fields, summary). Files are written atomically; a run that diverges still writes what
+//! it has (budget, receptors, fields so far, a summary saying why it stopped). Nothing here
+//! prints: progress goes to a callback.
+
+pub mod receptors;
+pub mod summary;
+
+use crate::budget::BudgetRow;
+use crate::output::{self, FieldMeta, FieldsWriter, FrameSpec, OutputError};
+use crate::scenario::Scenario;
+use crate::step::Simulation;
+use crate::RunError;
+use receptors::ReceptorLog;
+use std::ops::ControlFlow;
+use std::path::{Path, PathBuf};
+use std::time::Instant;
+pub use summary::RunSummary;
+
+/// The caution printed with results and stored in `summary.json`.
+pub const CAUTION: &str = "Screening estimate only: results depend on the prescribed flow, diffusivity, decay and \
+sources, and are not a substitute for a calibrated, site-specific study. Local regulations and licensed \
+professionals decide on any action affecting people or the environment.";
+
+/// Where a run is.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Progress {
+    /// Simulated time, s.
+    pub t: f64,
+    /// End time, s.
+    pub end: f64,
+    /// Steps taken.
+    pub step: u64,
+    /// The last step, s.
+    pub dt: f64,
+}
+
+/// A finished (or stopped) run: its folder and summary.
+#[derive(Debug, Clone)]
+pub struct RunOutcome {
+    /// `<dir>/<name>/`.
+    pub dir: PathBuf,
+    /// What `summary.json` holds.
+    pub summary: RunSummary,
+}
+
+/// Why a run did not complete.
+#[derive(Debug, thiserror::Error)]
+pub enum RunFailure {
+    /// The scenario cannot run as written (exit code 2).
+    #[error("{0}")]
+    BadInput(String),
+    /// An output file could not be written (exit code 1).
+    #[error(transparent)]
+    Output(#[from] OutputError),
+    /// The run diverged; the outputs up to that step were written (exit code 1).
+    #[error("{error}")]
+    Diverged {
+        /// What happened.
+        error: RunError,
+        /// The partial run.
+        outcome: Box<RunOutcome>,
+    },
+}
+
+/// CF standard name for a few common tracers (CF standard name table), else none.
+pub fn standard_name(tracer: &str) -> Option<&'static str> {
+    match tracer.to_ascii_lowercase().as_str() {
+        "temperature" | "heat" | "water_temperature" => Some("sea_water_temperature"),
+        "salinity" | "salt" => Some("sea_water_salinity"),
+        _ => None,
+    }
+}
+
+/// Runs `scn`, writing into `<out_base>/<name>/`.
+pub fn execute(scn: &Scenario, out_base: &Path, progress: &mut dyn FnMut(Progress)) -> Result<RunOutcome, RunFailure> {
+    // Everything that can be refused is refused before the folder is created.
+    let model = scn
+        .build_model()
+        .map_err(|e| RunFailure::BadInput(format!("{}: {e}", scn.path.display())))?;
+    let c0 = model.field_from(|x, y| scn.initial.value_at(x, y));
+    let mut sim = Simulation::new(model, scn.scheme, c0)
+        .map_err(|e| RunFailure::BadInput(format!("{}: {e}", scn.path.display())))?;
+    let grid = sim.model.grid;
+    let recs: Vec<_> = scn
+        .receptors
+        .iter()
+        .map(|r| (r.name.clone(), r.at, r.threshold))
+        .collect();
+    let mut receptors = ReceptorLog::new(&grid, &recs)
+        .ok_or_else(|| RunFailure::BadInput(format!("{}: a receptor lies outside the grid", scn.path.display())))?;
+
+    let dir = out_base.join(&scn.name);
+    let frames_dir = dir.join("frames");
+    std::fs::create_dir_all(&frames_dir).map_err(|e| OutputError::io(&frames_dir, e))?;
+    output::write_atomic(&dir.join("scenario.toml"), scn.resolved_toml().as_bytes())?;
+
+    let wet: Vec<bool> = sim.model.mask.as_slice().to_vec();
+    let n_frames = scn.run.frames;
+    let title = format!("{} ({})", scn.name, scn.scheme.limiter.name());
+    let history = format!("tinct {} run {}", env!("CARGO_PKG_VERSION"), scn.path.display());
+    let long_name = format!("{} concentration", scn.tracer.name);
+    let meta = FieldMeta {
+        name: "c",
+        long_name: &long_name,
+        units: &scn.tracer.units,
+        standard_name: standard_name(&scn.tracer.name),
+        title: &scn.name,
+        history: &history,
+    };
+    let mut fields = FieldsWriter::create(&dir.join("fields.nc"), &grid.xs(), &grid.ys(), n_frames + 1, &meta)?;
+
+    let started = Instant::now();
+    let mut rows: Vec<BudgetRow> = vec![sim.budget_row()];
+    let (mut dt_min, mut dt_max) = (f64::INFINITY, 0.0f64);
+    receptors.record(0.0, 0.0, &sim.state.c);
+    let write_frame = |sim: &Simulation, k: usize, fields: &mut FieldsWriter| -> Result<(), OutputError> {
+        let values = sim.field();
+        let spec = FrameSpec {
+            nx: grid.nx,
+            ny: grid.ny,
+            values: &values,
+            wet: Some(&wet),
+            tracer: &scn.tracer.name,
+            units: &scn.tracer.units,
+            time_s: sim.state.t,
+            scale: scn.output.colour,
+            range: scn.output.range,
+            title: Some(&title),
+        };
+        output::write_frame_png(&frames_dir.join(format!("{k:05}.png")), &spec)?;
+        fields.write_record(sim.state.t, &values, Some(&wet))
+    };
+    write_frame(&sim, 0, &mut fields)?;
+
+    let end = scn.run.end;
+    let log_every = scn.run.log_every.max(1);
+    let mut failure: Option<RunError> = None;
+    let mut written = 1;
+    for k in 1..=n_frames {
+        let target = if k == n_frames {
+            end
+        } else {
+            end * k as f64 / n_frames as f64
+        };
+        let res = sim.advance_to(target, |s| {
+            let st = &s.state;
+            dt_min = dt_min.min(st.last_dt);
+            dt_max = dt_max.max(st.last_dt);
+            receptors.record(st.t, st.last_dt, &st.c);
+            if st.step % log_every == 0 {
+                rows.push(s.budget_row());
+            }
+            progress(Progress {
+                t: st.t,
+                end,
+                step: st.step,
+                dt: st.last_dt,
+            });
+            ControlFlow::Continue(())
+        });
+        if let Err(e) = res {
+            rows.push(sim.budget_row());
+            failure = Some(e);
+            break;
+        }
+        if rows.last().map(|r| r.step) != Some(sim.state.step) {
+            rows.push(sim.budget_row());
+        }
+        write_frame(&sim, k, &mut fields)?;
+        written += 1;
+    }
+    let wall = started.elapsed().as_secs_f64();
+
+    // Logs and summary: written whether or not the run completed.
+    output::write_atomic(&dir.join("budget.csv"), budget_csv(&rows).as_bytes())?;
+    output::write_atomic(&dir.join("receptors.csv"), receptors.csv().as_bytes())?;
+    fields.finish()?;
+    remove_stale_frames(&frames_dir, written);
+    let summary = RunSummary::new(
+        scn,
+        &sim,
+        &rows,
+        receptors.stats(),
+        (dt_min, dt_max),
+        wall,
+        written,
+        failure.as_ref(),
+    );
+    let json = serde_json::to_string_pretty(&summary).expect("summary serialises");
+    output::write_atomic(&dir.join("summary.json"), json.as_bytes())?;
+    let outcome = RunOutcome { dir, summary };
+    match failure {
+        None => Ok(outcome),
+        Some(error) => Err(RunFailure::Diverged {
+            error,
+            outcome: Box::new(outcome),
+        }),
+    }
+}
+
+/// `budget.csv` with the DESIGN §5 columns.
+pub fn budget_csv(rows: &[BudgetRow]) -> String {
+    let mut out = String::from("time,step,dt,mass,added,inflow,outflow,decayed,residual,min,max,courant\n");
+    for r in rows {
+        out.push_str(&format!(
+            "{:e},{},{:e},{:e},{:e},{:e},{:e},{:e},{:e},{:e},{:e},{:e}\n",
+            r.time, r.step, r.dt, r.mass, r.added, r.inflow, r.outflow, r.decayed, r.residual, r.min, r.max, r.courant
+        ));
+    }
+    out
+}
+
+/// Removes `NNNNN.png` frames numbered `count` or above, left by an earlier, longer run.
+fn remove_stale_frames(frames_dir: &Path, count: usize) {
+    let Ok(entries) = std::fs::read_dir(frames_dir) else {
+        return;
+    };
+    for e in entries.flatten() {
+        let name = e.file_name();
+        let Some(stem) = name.to_str().and_then(|n| n.strip_suffix(".png")) else {
+            continue;
+        };
+        if stem.len() == 5 && stem.parse::<usize>().is_ok_and(|k| k >= count) {
+            let _ = std::fs::remove_file(e.path());
+        }
+    }
+}

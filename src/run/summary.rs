@@ -1,0 +1,149 @@
+//! `summary.json`: the facts of a run in one document.
+
+use super::receptors::ReceptorStats;
+use crate::budget::BudgetRow;
+use crate::scenario::Scenario;
+use crate::step::Simulation;
+use crate::RunError;
+
+/// The numerical choices as run.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct SchemeFacts {
+    /// Convection scheme name.
+    pub convection: String,
+    /// Time scheme.
+    pub time: String,
+    /// SSP Runge–Kutta stages.
+    pub stages: u8,
+    /// Target Courant number of the automatic step.
+    pub courant: f64,
+    /// The fixed step, if one was given.
+    pub dt: Option<f64>,
+}
+
+/// Everything `summary.json` holds.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct RunSummary {
+    /// Program and version.
+    pub program: String,
+    /// Scenario name.
+    pub scenario: String,
+    /// `completed` or `diverged`.
+    pub status: String,
+    /// Why the run stopped early, if it did.
+    pub error: Option<String>,
+    /// Cells in the grid.
+    pub cells: usize,
+    /// Water cells.
+    pub wet_cells: usize,
+    /// Steps taken.
+    pub steps: u64,
+    /// Simulated time reached, s.
+    pub simulated_time: f64,
+    /// Smallest step, s.
+    pub dt_min: f64,
+    /// Largest step, s.
+    pub dt_max: f64,
+    /// Wall-clock time of the time loop (frames and logs included), s.
+    pub wall_seconds: f64,
+    /// Cell updates per wall-clock second.
+    pub cell_updates_per_second: f64,
+    /// Largest |budget residual| over the logged rows.
+    pub max_abs_residual: f64,
+    /// Smallest concentration over the logged rows.
+    pub min_ever: f64,
+    /// Largest concentration over the logged rows.
+    pub max_ever: f64,
+    /// Mass at the start.
+    pub initial_mass: f64,
+    /// Mass at the end.
+    pub final_mass: f64,
+    /// Mass released by sources.
+    pub added: f64,
+    /// Mass carried in through the sides.
+    pub inflow: f64,
+    /// Mass carried out through the sides.
+    pub outflow: f64,
+    /// Mass removed by decay.
+    pub decayed: f64,
+    /// Largest discrete divergence of the base flow, 1/s.
+    pub max_flow_divergence: f64,
+    /// Numerical choices.
+    pub scheme: SchemeFacts,
+    /// Frames written.
+    pub frames: usize,
+    /// Per-receptor statistics.
+    pub receptors: Vec<ReceptorStats>,
+    /// Files of the run, relative to its folder.
+    pub files: Vec<String>,
+    /// The caution that goes with every result.
+    pub caution: String,
+}
+
+impl RunSummary {
+    /// Gathers the summary of a run.
+    #[allow(clippy::too_many_arguments)]
+    pub fn new(
+        scn: &Scenario,
+        sim: &Simulation,
+        rows: &[BudgetRow],
+        receptors: &[ReceptorStats],
+        dt_range: (f64, f64),
+        wall_seconds: f64,
+        frames: usize,
+        failure: Option<&RunError>,
+    ) -> Self {
+        let last = rows.last().copied().unwrap_or_else(|| sim.budget_row());
+        let cells = sim.model.grid.cells();
+        let steps = sim.state.step;
+        let mut files: Vec<String> = [
+            "scenario.toml",
+            "budget.csv",
+            "receptors.csv",
+            "summary.json",
+            "fields.nc",
+        ]
+        .map(String::from)
+        .to_vec();
+        files.extend((0..frames).map(|k| format!("frames/{k:05}.png")));
+        Self {
+            program: format!("tinct {}", env!("CARGO_PKG_VERSION")),
+            scenario: scn.name.clone(),
+            status: if failure.is_some() { "diverged" } else { "completed" }.into(),
+            error: failure.map(|e| e.to_string()),
+            cells,
+            wet_cells: sim.model.mask.wet_count(),
+            steps,
+            simulated_time: sim.state.t,
+            dt_min: if steps > 0 { dt_range.0 } else { 0.0 },
+            dt_max: dt_range.1,
+            wall_seconds,
+            cell_updates_per_second: if wall_seconds > 0.0 {
+                cells as f64 * steps as f64 / wall_seconds
+            } else {
+                0.0
+            },
+            max_abs_residual: rows.iter().map(|r| r.residual.abs()).fold(0.0, f64::max),
+            min_ever: rows.iter().map(|r| r.min).fold(f64::INFINITY, f64::min),
+            max_ever: rows.iter().map(|r| r.max).fold(f64::NEG_INFINITY, f64::max),
+            initial_mass: sim.budget.mass0,
+            final_mass: last.mass,
+            added: last.added,
+            inflow: last.inflow,
+            outflow: last.outflow,
+            decayed: last.decayed,
+            max_flow_divergence: sim.model.flow.max_divergence(),
+            scheme: SchemeFacts {
+                convection: scn.scheme.limiter.name().into(),
+                time: "explicit".into(),
+                stages: scn.scheme.stages,
+                courant: scn.scheme.courant,
+                dt: scn.scheme.dt,
+            },
+            frames,
+            receptors: receptors.to_vec(),
+            files,
+            caution: super::CAUTION.into(),
+        }
+    }
+}
