@@ -2,6 +2,7 @@
 
 use super::receptors::ReceptorStats;
 use crate::budget::BudgetRow;
+use crate::ops::boundary::{Side, SideKind};
 use crate::scenario::Scenario;
 use crate::step::Simulation;
 use crate::RunError;
@@ -19,6 +20,19 @@ pub struct SchemeFacts {
     pub courant: f64,
     /// The fixed step, if one was given.
     pub dt: Option<f64>,
+}
+
+/// What crossed one side over the run.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct SideBudget {
+    /// `west`, `east`, `south` or `north`.
+    pub side: String,
+    /// The side condition.
+    pub kind: String,
+    /// Mass carried in.
+    pub inflow: f64,
+    /// Mass carried out.
+    pub outflow: f64,
 }
 
 /// Everything `summary.json` holds.
@@ -66,6 +80,8 @@ pub struct RunSummary {
     pub outflow: f64,
     /// Mass removed by decay.
     pub decayed: f64,
+    /// Mass carried in and out through each side that passes flow or a Dirichlet value.
+    pub sides: Vec<SideBudget>,
     /// Largest discrete divergence of the base flow, 1/s.
     pub max_flow_divergence: f64,
     /// Numerical choices.
@@ -132,6 +148,21 @@ impl RunSummary {
             inflow: last.inflow,
             outflow: last.outflow,
             decayed: last.decayed,
+            sides: Side::ALL
+                .iter()
+                .filter(|&&side| {
+                    matches!(
+                        sim.model.boundaries.get(side),
+                        SideKind::Open { .. } | SideKind::Fixed { .. }
+                    )
+                })
+                .map(|&side| SideBudget {
+                    side: side.name().into(),
+                    kind: sim.model.boundaries.get(side).to_string(),
+                    inflow: sim.budget.inflow_through(side),
+                    outflow: sim.budget.outflow_through(side),
+                })
+                .collect(),
             max_flow_divergence: sim.model.flow.max_divergence(),
             scheme: SchemeFacts {
                 convection: scn.scheme.limiter.name().into(),
