@@ -61,6 +61,8 @@ pub(crate) struct StageParams {
     pub final_stage: bool,
     pub decay: f64,
     pub limit: f64,
+    /// Multiplies the diffusivity: 1 for the full operator, 0 for convection alone.
+    pub diffusion: f64,
 }
 
 /// Runs one stage over all row blocks. `src` must have its ghosts filled.
@@ -161,11 +163,17 @@ impl<'a> YRows<'a> {
 
 /// Fluxes through the y-faces of face row `jf` into `f`.
 #[inline(always)]
-fn y_faces<K: LimiterKernel, const MASKED: bool>(m: &Model, src: &[f64], jf: usize, factor: f64, f: &mut [f64]) {
+fn y_faces<K: LimiterKernel, const MASKED: bool>(
+    m: &Model,
+    src: &[f64],
+    jf: usize,
+    factor: f64,
+    coef: f64,
+    f: &mut [f64],
+) {
     let nx = m.grid.nx;
     let y = YRows::new(m, src, jf).cut(nx);
     let f = &mut f[..nx];
-    let coef = m.ky / m.grid.dy;
     for (i, fi) in f.iter_mut().enumerate() {
         *fi = y.flux::<K, MASKED>(i, factor, coef);
     }
@@ -173,7 +181,14 @@ fn y_faces<K: LimiterKernel, const MASKED: bool>(m: &Model, src: &[f64], jf: usi
 
 /// Fluxes through the x-faces of cell row `j` (nx + 1 faces, west face of cell i at i) into `f`.
 #[inline(always)]
-fn x_faces<K: LimiterKernel, const MASKED: bool>(m: &Model, src: &[f64], j: usize, factor: f64, f: &mut [f64]) {
+fn x_faces<K: LimiterKernel, const MASKED: bool>(
+    m: &Model,
+    src: &[f64],
+    j: usize,
+    factor: f64,
+    coef: f64,
+    f: &mut [f64],
+) {
     let g = &m.grid;
     let (s, n) = (g.stride(), g.nx + 1);
     let p0 = (j + 2) * s;
@@ -181,7 +196,6 @@ fn x_faces<K: LimiterKernel, const MASKED: bool>(m: &Model, src: &[f64], j: usiz
     let (ll, l, r, rr) = (&row[0..n], &row[1..n + 1], &row[2..n + 2], &row[3..n + 3]);
     let u = &m.flow.u[p0 + 2..p0 + 2 + n];
     let f = &mut f[..n];
-    let coef = m.kx / g.dx;
     if MASKED {
         let wrow = &m.wet[p0..p0 + s];
         let (wll, wl, wr, wrr) = (&wrow[0..n], &wrow[1..n + 1], &wrow[2..n + 2], &wrow[3..n + 3]);
@@ -273,13 +287,13 @@ fn block<K: LimiterKernel, const MASKED: bool, const BASE: bool>(
     let b = &m.boundaries;
     let dtdx = p.dt / g.dx;
     let dtdy = p.dt / g.dy;
-    let (cx2, cy2) = (2.0 * m.kx / g.dx, 2.0 * m.ky / g.dy);
-    let coef_y = m.ky / g.dy;
+    let (coef_x, coef_y) = (p.diffusion * m.kx / g.dx, p.diffusion * m.ky / g.dy);
+    let (cx2, cy2) = (2.0 * coef_x, 2.0 * coef_y);
     let limit = p.limit;
     let Block { fx, fys, fyn, sums } = blk;
     *sums = BlockSums::default();
     // South faces of the block's first row.
-    y_faces::<K, MASKED>(m, src, j0, p.factor, fys);
+    y_faces::<K, MASKED>(m, src, j0, p.factor, coef_y, fys);
     if j0 == 0 {
         let q = g.idx(0, 0);
         side_row(
@@ -297,7 +311,7 @@ fn block<K: LimiterKernel, const MASKED: bool, const BASE: bool>(
     for r in 0..rows {
         let j = j0 + r;
         let q = g.idx(0, j as isize);
-        x_faces::<K, MASKED>(m, src, j, p.factor, fx);
+        x_faces::<K, MASKED>(m, src, j, p.factor, coef_x, fx);
         if let Some(f) = side_face(b.west, Side::West, p.factor * m.flow.u[q], src[q], m.wet[q], cx2, sums) {
             fx[0] = f;
         }
@@ -327,7 +341,7 @@ fn block<K: LimiterKernel, const MASKED: bool, const BASE: bool>(
         };
         if j + 1 == ny && b.north != SideKind::Periodic {
             // North side row: side fluxes first, then the update.
-            y_faces::<K, MASKED>(m, src, j + 1, p.factor, fyn);
+            y_faces::<K, MASKED>(m, src, j + 1, p.factor, coef_y, fyn);
             let qn = g.idx(0, ny as isize);
             side_row(
                 b.north,

@@ -5,16 +5,17 @@
 //! stepper is the SSP Runge–Kutta family of Shu & Osher (1988) with 1, 2 or 3 stages, each stage
 //! one fused sweep of [`kernel`].
 
+mod explicit;
 pub(crate) mod kernel;
 
 use crate::budget::{Budget, BudgetRow};
 use crate::error::{invalid, positive, ModelError, RunError};
 use crate::model::Model;
-use crate::ops::boundary::{fill_ghosts, Side, SideKind};
+use crate::ops::boundary::{Side, SideKind};
 use crate::ops::diffusion;
 use crate::ops::limiter::Limiter;
 use crate::ops::sources::decay_factor;
-use kernel::{Block, StageParams};
+use explicit::Explicit;
 use std::ops::ControlFlow;
 
 /// Numerical choices of a run.
@@ -136,48 +137,8 @@ pub struct State {
     pub last_courant: f64,
 }
 
-/// Explicit SSP Runge–Kutta stepper with its scratch.
-#[derive(Debug)]
-struct Explicit {
-    a: Vec<f64>,
-    b: Vec<f64>,
-    blocks: Vec<Block>,
-    rows_per_block: usize,
-}
-
-impl Explicit {
-    fn new(model: &Model) -> Self {
-        let ny = model.grid.ny;
-        let threads = rayon::current_num_threads().max(1);
-        // A few blocks per thread for balance; each block recomputes one face row.
-        let rows_per_block = ny.div_ceil(4 * threads).max(16).min(ny);
-        let nblocks = ny.div_ceil(rows_per_block);
-        Self {
-            // Filled with NaN so that any read of a value no stage wrote shows up at once.
-            a: vec![f64::NAN; model.grid.padded_len()],
-            b: vec![f64::NAN; model.grid.padded_len()],
-            blocks: (0..nblocks).map(|_| Block::new(model.grid.nx)).collect(),
-            rows_per_block,
-        }
-    }
-}
-
-/// SSP-RK stage coefficients (Shu & Osher 1988) as (alpha, beta, time offset) with
-/// `u_k = alpha u_n + beta (u_{k-1} + dt L(u_{k-1}))`, and the weights with which each
-/// stage's fluxes enter the step.
-fn tableau(stages: u8) -> (&'static [(f64, f64, f64)], &'static [f64]) {
-    match stages {
-        1 => (&[(0.0, 1.0, 0.0)], &[1.0]),
-        2 => (&[(0.0, 1.0, 0.0), (0.5, 0.5, 1.0)], &[0.5, 0.5]),
-        _ => (
-            &[(0.0, 1.0, 0.0), (0.75, 0.25, 1.0), (1.0 / 3.0, 2.0 / 3.0, 0.5)],
-            &[1.0 / 6.0, 1.0 / 6.0, 2.0 / 3.0],
-        ),
-    }
-}
-
 /// Mass that instantaneous and continuous sources may release in (t, t + dt].
-fn s_max_release(m: &Model, t: f64, dt: f64) -> f64 {
+fn max_release(m: &Model, t: f64, dt: f64) -> f64 {
     m.sources.iter().map(|s| s.mass_between(t, t + dt)).sum()
 }
 
@@ -291,7 +252,7 @@ impl Simulation {
         Ok(())
     }
 
-    /// One step of `dt` seconds: convection and diffusion (SSP-RK), decay, then sources.
+    /// One step of `dt` seconds: convection and diffusion, decay, then sources.
     pub fn step(&mut self, dt: f64) -> Result<(), RunError> {
         let Self {
             model,
@@ -302,87 +263,19 @@ impl Simulation {
             scale,
             ..
         } = self;
-        let scale = *scale;
         let m = &*model;
-        let (stages, weights) = tableau(scheme.stages);
         let decay = decay_factor(m.decay_rate, dt);
-        let mut side_mass = [[0.0f64; 2]; 4];
-        let mut max_factor = 0.0f64;
-        let mut transported = 0.0;
-        let mut bad = false;
-        let masked = m.has_land();
         // Values beyond a thousand times the largest the data can explain are a blow-up.
-        let limit = 1e3 * (scale + (budget.added() + s_max_release(m, state.t, dt)) / m.cell_volume());
-        let nst = stages.len();
-        for (k, &(alpha, beta, toff)) in stages.iter().enumerate() {
-            let factor = m.flow.factor(state.t + toff * dt);
-            max_factor = max_factor.max(factor.abs());
-            let p = StageParams {
-                dt,
-                factor,
-                alpha,
-                beta,
-                final_stage: k + 1 == nst,
-                decay,
-                limit,
-            };
-            // Stage buffers: c -> a -> b -> a (3 stages), c -> a -> b (2), c -> a (1).
-            match k {
-                0 => fill_ghosts(&m.grid, &m.boundaries, &mut state.c),
-                1 => fill_ghosts(&m.grid, &m.boundaries, &mut stepper.a),
-                _ => fill_ghosts(&m.grid, &m.boundaries, &mut stepper.b),
-            }
-            let (src, out): (&[f64], &mut [f64]) = match k {
-                0 => (&state.c, &mut stepper.a),
-                1 => (&stepper.a, &mut stepper.b),
-                _ => (&stepper.b, &mut stepper.a),
-            };
-            let base: &[f64] = &state.c;
-            let rpb = stepper.rows_per_block;
-            let blocks = &mut stepper.blocks;
-            crate::with_limiter!(scheme.limiter, K => {
-                if masked {
-                    kernel::stage::<K, true>(m, src, base, out, blocks, rpb, p)
-                } else {
-                    kernel::stage::<K, false>(m, src, base, out, blocks, rpb, p)
-                }
-            });
-            for blk in blocks.iter() {
-                for (sm, (i, o)) in side_mass
-                    .iter_mut()
-                    .zip(blk.sums.side_in.iter().zip(&blk.sums.side_out))
-                {
-                    sm[0] += weights[k] * i;
-                    sm[1] += weights[k] * o;
-                }
-            }
-            if p.final_stage {
-                let mut sum = crate::field::Neumaier::default();
-                for blk in blocks.iter() {
-                    sum.add(blk.sums.sum.value());
-                    bad |= blk.sums.bad;
-                }
-                transported = sum.value();
-            }
-        }
-        // The final stage wrote into a or b: make it the state.
-        match nst {
-            2 => std::mem::swap(&mut state.c, &mut stepper.b),
-            _ => std::mem::swap(&mut state.c, &mut stepper.a),
-        }
-        let h = m.depth;
+        let limit = 1e3 * (*scale + (budget.added() + max_release(m, state.t, dt)) / m.cell_volume());
+        let out = stepper.advance(m, scheme, state, dt, decay, limit, 1.0);
         for side in Side::ALL {
-            let len = match side {
-                Side::West | Side::East => m.grid.dy,
-                _ => m.grid.dx,
-            };
-            let [i, o] = side_mass[side.index()];
+            let [i, o] = out.side_mass[side.index()];
             if i != 0.0 || o != 0.0 {
-                budget.add_side(side, i * len * h * dt, o * len * h * dt);
+                budget.add_side(side, i, o);
             }
         }
         if decay != 1.0 {
-            budget.add_decayed((1.0 - decay) * transported * m.cell_volume());
+            budget.add_decayed((1.0 - decay) * out.transported * m.cell_volume());
         }
         let t1 = state.t + dt;
         let inv_vol = 1.0 / m.cell_volume();
@@ -396,8 +289,8 @@ impl Simulation {
         state.t = t1;
         state.step += 1;
         state.last_dt = dt;
-        state.last_courant = m.flow.courant_rate() * max_factor * dt;
-        if bad {
+        state.last_courant = m.flow.courant_rate() * out.max_factor * dt;
+        if out.bad {
             return Err(self.diverged());
         }
         Ok(())
