@@ -38,6 +38,7 @@ pub mod initial;
 pub mod model;
 pub mod ops;
 pub mod output;
+pub mod solve;
 pub mod step;
 
 pub use error::{ModelError, RunError};
