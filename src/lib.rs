@@ -40,6 +40,7 @@ pub mod ops;
 pub mod output;
 pub mod run;
 pub mod scenario;
+pub mod solve;
 pub mod step;
 
 pub use error::{ModelError, RunError};

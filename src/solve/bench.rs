@@ -1,0 +1,109 @@
+//! The implicit-diffusion benchmark: backward Euler for pure diffusion on the unit square,
+//! N by N cells, diffusion number d = K dt / h^2, zero-flux sides, solved to a relative
+//! residual of 1e-10. The first right-hand side is the peers' Gaussian hill plus cone
+//! (`../shared/peers/explicit-step`, README §1); each later step uses the previous solution
+//! as both right-hand side and initial guess. Only the solves are timed; assembly plus solver
+//! set-up is reported separately. Nothing here prints; callers report.
+
+use super::{Sides, SolveError, Solver, SolverParams, Stencil5};
+use crate::grid::{Grid, Mask};
+use std::time::Instant;
+
+/// Results of [`implicit_diffusion`].
+#[derive(Debug, Clone, PartialEq)]
+pub struct DiffusionBench {
+    /// Cells per side.
+    pub n: usize,
+    /// Diffusion number K dt / h^2.
+    pub d: f64,
+    /// rayon threads in the pool that ran it.
+    pub threads: usize,
+    /// Multigrid levels.
+    pub levels: usize,
+    /// Seconds for assembly plus solver set-up.
+    pub setup_seconds: f64,
+    /// Seconds of each step's solve.
+    pub seconds: Vec<f64>,
+    /// Iterations of each step.
+    pub iterations: Vec<usize>,
+    /// True relative residual of each step.
+    pub relative_residuals: Vec<f64>,
+}
+
+impl DiffusionBench {
+    /// Median seconds per step.
+    pub fn median_seconds(&self) -> f64 {
+        median(&self.seconds)
+    }
+
+    /// Median iterations per step.
+    pub fn median_iterations(&self) -> f64 {
+        let v: Vec<f64> = self.iterations.iter().map(|&k| k as f64).collect();
+        median(&v)
+    }
+}
+
+/// Median of a non-empty list (NaN for an empty one).
+pub fn median(v: &[f64]) -> f64 {
+    if v.is_empty() {
+        return f64::NAN;
+    }
+    let mut s = v.to_vec();
+    s.sort_by(f64::total_cmp);
+    let m = s.len() / 2;
+    if s.len() % 2 == 1 {
+        s[m]
+    } else {
+        0.5 * (s[m - 1] + s[m])
+    }
+}
+
+/// The peers' initial field: a Gaussian hill at (0.5, 0.75) of width 0.05 plus a cone of
+/// radius 0.15 at (0.5, 0.25).
+pub fn hill_and_cone(x: f64, y: f64) -> f64 {
+    let g = (-((x - 0.5).powi(2) + (y - 0.75).powi(2)) / (2.0 * 0.05 * 0.05)).exp();
+    let c = (1.0 - ((x - 0.5).powi(2) + (y - 0.25).powi(2)).sqrt() / 0.15).max(0.0);
+    g + c
+}
+
+/// Runs `steps` backward-Euler diffusion steps on `n` by `n` cells at diffusion number `d`
+/// with the given solver parameters, in the current rayon pool.
+pub fn implicit_diffusion(n: usize, steps: usize, d: f64, params: SolverParams) -> Result<DiffusionBench, SolveError> {
+    let h = 1.0 / n as f64;
+    let grid = Grid::new(n, n, h, h, 0.0, 0.0).map_err(|e| SolveError::InvalidOperator(e.to_string()))?;
+    let mask = Mask::all_water(&grid);
+    let t0 = Instant::now();
+    let tk = d * h * h;
+    let a = Stencil5::diffusion(&grid, &mask, Sides::closed(), tk, tk)?;
+    let mut solver = Solver::new(&a, params)?;
+    let setup_seconds = t0.elapsed().as_secs_f64();
+    let mut b = vec![0.0; grid.cells()];
+    for j in 0..n {
+        for i in 0..n {
+            let (x, y) = grid.centre(i, j);
+            b[j * n + i] = hill_and_cone(x, y);
+        }
+    }
+    let mut x = b.clone();
+    let mut out = DiffusionBench {
+        n,
+        d,
+        threads: rayon::current_num_threads(),
+        levels: solver.multigrid().levels(),
+        setup_seconds,
+        seconds: Vec::with_capacity(steps),
+        iterations: Vec::with_capacity(steps),
+        relative_residuals: Vec::with_capacity(steps),
+    };
+    for step in 0..steps {
+        if step > 0 {
+            b.copy_from_slice(&x);
+        }
+        let t = Instant::now();
+        let stats = solver.solve(&a, &b, &mut x)?;
+        out.seconds.push(t.elapsed().as_secs_f64());
+        out.iterations.push(stats.iterations);
+        out.relative_residuals.push(stats.relative_residual);
+    }
+    Ok(out)
+}

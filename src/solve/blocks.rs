@@ -1,0 +1,71 @@
+//! Row-block partitioning shared by the solver kernels: work is split into blocks of
+//! contiguous rows, run in parallel with rayon when there is more than one block, and
+//! reductions sum per-block partials in block order (deterministic for a given block size).
+
+use rayon::prelude::*;
+
+/// Most blocks a level is split into; partial sums live in a stack array of this size.
+pub(crate) const MAX_BLOCKS: usize = 64;
+
+/// Fewest cells per block: below this a level runs on one thread (rayon's overhead of a few
+/// microseconds per call would exceed the work).
+const MIN_CELLS_PER_BLOCK: usize = 16 * 1024;
+
+/// Rows per block for an `nx` by `ny` level: a few blocks per thread for balance.
+pub(crate) fn rows_per_block(nx: usize, ny: usize) -> usize {
+    let threads = rayon::current_num_threads().max(1);
+    let by_threads = ny.div_ceil((4 * threads).min(MAX_BLOCKS));
+    let by_size = MIN_CELLS_PER_BLOCK.div_ceil(nx.max(1));
+    by_threads.max(by_size).max(ny.div_ceil(MAX_BLOCKS)).clamp(1, ny.max(1))
+}
+
+/// Runs `f(first_row, rows)` on every block of `out` (rows of `nx` values, `rpb` per block).
+#[inline]
+pub(crate) fn for_rows<F>(out: &mut [f64], nx: usize, rpb: usize, f: F)
+where
+    F: Fn(usize, &mut [f64]) + Sync + Send,
+{
+    let chunk = rpb * nx;
+    if out.len() <= chunk {
+        f(0, out);
+    } else {
+        out.par_chunks_mut(chunk).enumerate().for_each(|(b, c)| f(b * rpb, c));
+    }
+}
+
+/// Like [`for_rows`], returning the sum of the values `f` returns, in block order.
+#[inline]
+pub(crate) fn sum_rows_mut<F>(out: &mut [f64], nx: usize, rpb: usize, f: F) -> f64
+where
+    F: Fn(usize, &mut [f64]) -> f64 + Sync + Send,
+{
+    let chunk = rpb * nx;
+    if out.len() <= chunk {
+        return f(0, out);
+    }
+    let nb = out.len().div_ceil(chunk);
+    let mut partial = [0.0f64; MAX_BLOCKS];
+    out.par_chunks_mut(chunk)
+        .zip(partial[..nb].par_iter_mut())
+        .enumerate()
+        .for_each(|(b, (c, p))| *p = f(b * rpb, c));
+    partial[..nb].iter().sum()
+}
+
+/// Sum over row blocks of `f(first_row, end_row)` (read-only work), in block order.
+#[inline]
+pub(crate) fn sum_rows<F>(ny: usize, rpb: usize, f: F) -> f64
+where
+    F: Fn(usize, usize) -> f64 + Sync + Send,
+{
+    if ny <= rpb {
+        return f(0, ny);
+    }
+    let nb = ny.div_ceil(rpb);
+    let mut partial = [0.0f64; MAX_BLOCKS];
+    partial[..nb]
+        .par_iter_mut()
+        .enumerate()
+        .for_each(|(b, p)| *p = f(b * rpb, ((b + 1) * rpb).min(ny)));
+    partial[..nb].iter().sum()
+}

@@ -1,0 +1,461 @@
+//! Krylov drivers preconditioned by one multigrid V-cycle: conjugate gradients for symmetric
+//! operators (Hestenes & Stiefel 1952; preconditioned form as in Saad, "Iterative Methods for
+//! Sparse Linear Systems", 2nd ed. 2003, Alg. 9.1) and BiCGStab for non-symmetric ones
+//! (van der Vorst 1992, right-preconditioned; Saad 2003, Alg. 7.7 with preconditioning).
+//!
+//! The previous solution is the initial guess (`x` is in/out). Convergence is judged on the
+//! recurrence residual, then confirmed on the true residual `||b - A x|| / ||b||`, which is the
+//! value reported; if the two have drifted apart the iteration restarts from the true residual
+//! while iterations remain.
+
+use super::blocks::{sum_rows, MAX_BLOCKS};
+use super::multigrid::{Multigrid, MultigridParams};
+use super::stencil::Stencil5;
+use super::{check_len, SolveError};
+use rayon::prelude::*;
+
+/// Which Krylov method a [`Solver`] uses.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum Method {
+    /// Conjugate gradients when the operator is exactly symmetric, else BiCGStab.
+    #[default]
+    Auto,
+    /// Preconditioned conjugate gradients (symmetric positive definite operators only).
+    Cg,
+    /// Preconditioned BiCGStab (van der Vorst 1992), for any non-singular operator.
+    BiCgStab,
+}
+
+/// Tolerances and caps of a solve.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SolverParams {
+    /// Stop when `||b - A x|| <= rtol ||b||` (default 1e-10).
+    pub rtol: f64,
+    /// Most iterations (default 100; a BiCGStab iteration does two products and two V-cycles).
+    pub max_iter: usize,
+    /// The Krylov method (default [`Method::Auto`]).
+    pub method: Method,
+    /// The preconditioner's hierarchy and cycle.
+    pub multigrid: MultigridParams,
+}
+
+impl Default for SolverParams {
+    fn default() -> Self {
+        Self {
+            rtol: 1e-10,
+            max_iter: 100,
+            method: Method::Auto,
+            multigrid: MultigridParams::default(),
+        }
+    }
+}
+
+/// What a successful solve did.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SolveStats {
+    /// Krylov iterations.
+    pub iterations: usize,
+    /// True relative residual `||b - A x|| / ||b||`, recomputed at the end (0 when b = 0).
+    pub relative_residual: f64,
+    /// The method used.
+    pub method: Method,
+}
+
+/// A preconditioned Krylov solver for one operator, holding the multigrid hierarchy and every
+/// vector a solve needs.
+#[derive(Debug, Clone)]
+pub struct Solver {
+    params: SolverParams,
+    method: Method,
+    mg: Multigrid,
+    n: usize,
+    nx: usize,
+    rpb: usize,
+    land: Vec<usize>,
+    r: Vec<f64>,
+    z: Vec<f64>,
+    p: Vec<f64>,
+    q: Vec<f64>,
+    rhat: Vec<f64>,
+    zz: Vec<f64>,
+    t: Vec<f64>,
+}
+
+impl Solver {
+    /// Builds the multigrid hierarchy and all scratch for `a`.
+    pub fn new(a: &Stencil5, params: SolverParams) -> Result<Self, SolveError> {
+        if !(params.rtol > 0.0 && params.rtol < 1.0) {
+            return Err(SolveError::InvalidParameter {
+                what: "rtol",
+                value: params.rtol.to_string(),
+                allowed: "in (0, 1)",
+            });
+        }
+        if params.max_iter == 0 {
+            return Err(SolveError::InvalidParameter {
+                what: "max_iter",
+                value: "0".into(),
+                allowed: ">= 1",
+            });
+        }
+        let mg = Multigrid::new(a, params.multigrid)?;
+        let mut s = Self {
+            params,
+            method: Method::Auto,
+            mg,
+            n: a.cells(),
+            nx: a.nx(),
+            rpb: a.rpb(),
+            land: Vec::new(),
+            r: Vec::new(),
+            z: Vec::new(),
+            p: Vec::new(),
+            q: Vec::new(),
+            rhat: Vec::new(),
+            zz: Vec::new(),
+            t: Vec::new(),
+        };
+        s.resolve_method(a)?;
+        Ok(s)
+    }
+
+    /// Refreshes the hierarchy for new coefficients of an operator of the same shape; no
+    /// allocation unless the operator changes between symmetric and non-symmetric under
+    /// [`Method::Auto`].
+    pub fn update(&mut self, a: &Stencil5) -> Result<(), SolveError> {
+        self.mg.update(a)?;
+        self.resolve_method(a)
+    }
+
+    fn resolve_method(&mut self, a: &Stencil5) -> Result<(), SolveError> {
+        let m = match self.params.method {
+            Method::Auto if a.is_symmetric() => Method::Cg,
+            Method::Auto => Method::BiCgStab,
+            m => m,
+        };
+        if m == Method::Cg {
+            if !a.is_symmetric() {
+                return Err(SolveError::InvalidOperator(
+                    "conjugate gradients need a symmetric operator; use Method::BiCgStab or Method::Auto".into(),
+                ));
+            }
+            let mp = self.params.multigrid;
+            if mp.pre_sweeps != mp.post_sweeps {
+                return Err(SolveError::InvalidParameter {
+                    what: "multigrid.post_sweeps",
+                    value: mp.post_sweeps.to_string(),
+                    allowed: "equal to pre_sweeps with conjugate gradients (symmetric V-cycle)",
+                });
+            }
+        }
+        self.method = m;
+        self.land.clear();
+        self.land
+            .extend(a.land().iter().enumerate().filter(|(_, &l)| l).map(|(k, _)| k));
+        let n = self.n;
+        for v in [&mut self.r, &mut self.z, &mut self.p, &mut self.q] {
+            v.resize(n, 0.0);
+        }
+        let extra = if m == Method::BiCgStab { n } else { 0 };
+        for v in [&mut self.rhat, &mut self.zz, &mut self.t] {
+            v.resize(extra, 0.0);
+        }
+        Ok(())
+    }
+
+    /// The method solves use (after resolving [`Method::Auto`]).
+    pub fn method(&self) -> Method {
+        self.method
+    }
+
+    /// The multigrid preconditioner.
+    pub fn multigrid(&self) -> &Multigrid {
+        &self.mg
+    }
+
+    /// Solves `A x = b` to the relative tolerance, starting from `x`. `a` must be the operator
+    /// the solver was built or last updated for. On [`SolveError::NotConverged`], `x` holds the
+    /// last iterate.
+    pub fn solve(&mut self, a: &Stencil5, b: &[f64], x: &mut [f64]) -> Result<SolveStats, SolveError> {
+        check_len("b", b, self.n)?;
+        check_len("x", x, self.n)?;
+        if a.cells() != self.n || a.nx() != self.nx {
+            return Err(SolveError::InvalidOperator(
+                "operator shape differs from the one the solver was built for".into(),
+            ));
+        }
+        let bnorm = dot(b, b, self.nx, self.rpb).sqrt();
+        if !bnorm.is_finite() {
+            return Err(SolveError::NonFinite("the right-hand side"));
+        }
+        if bnorm == 0.0 {
+            x.fill(0.0);
+            return Ok(SolveStats {
+                iterations: 0,
+                relative_residual: 0.0,
+                method: self.method,
+            });
+        }
+        // Land rows are the identity: set x = b there, so the residual, the preconditioned
+        // residual and every search direction are exactly zero on land and x stays b.
+        for &k in &self.land {
+            x[k] = b[k];
+        }
+        let (iterations, rel) = match self.method {
+            Method::BiCgStab => self.bicgstab(a, b, x, bnorm)?,
+            _ => self.cg(a, b, x, bnorm)?,
+        };
+        if rel <= self.params.rtol {
+            Ok(SolveStats {
+                iterations,
+                relative_residual: rel,
+                method: self.method,
+            })
+        } else {
+            Err(SolveError::NotConverged {
+                iterations,
+                relative_residual: rel,
+                rtol: self.params.rtol,
+            })
+        }
+    }
+
+    /// Preconditioned CG; returns (iterations, true relative residual).
+    fn cg(&mut self, a: &Stencil5, b: &[f64], x: &mut [f64], bnorm: f64) -> Result<(usize, f64), SolveError> {
+        let (nx, rpb) = (self.nx, self.rpb);
+        let tol = self.params.rtol * bnorm;
+        let mut it = 0;
+        loop {
+            // (Re)start from the true residual.
+            let rr = a.residual_into(b, x, &mut self.r);
+            if !rr.is_finite() {
+                return Err(SolveError::NonFinite("the initial guess x"));
+            }
+            if rr.sqrt() <= tol || it >= self.params.max_iter {
+                return Ok((it, rr.sqrt() / bnorm));
+            }
+            self.mg.vcycle(a, &self.r, &mut self.z);
+            self.p.copy_from_slice(&self.z);
+            let mut rz = dot(&self.r, &self.z, nx, rpb);
+            while it < self.params.max_iter {
+                it += 1;
+                let pq = a.apply_dot(&self.p, &mut self.q);
+                if !(pq > 0.0) || !(rz > 0.0) {
+                    // Not positive definite (or exact convergence): restart from the true residual.
+                    break;
+                }
+                let alpha = rz / pq;
+                let rr = update_xr(x, &mut self.r, &self.p, &self.q, alpha, nx, rpb);
+                if rr.sqrt() <= tol {
+                    break;
+                }
+                self.mg.vcycle(a, &self.r, &mut self.z);
+                let rz_new = dot(&self.r, &self.z, nx, rpb);
+                let beta = rz_new / rz;
+                rz = rz_new;
+                axpby(&mut self.p, &self.z, beta, nx, rpb);
+            }
+            let true_rr = a.residual_sq(b, x);
+            if true_rr.sqrt() <= tol || it >= self.params.max_iter {
+                return Ok((it, true_rr.sqrt() / bnorm));
+            }
+        }
+    }
+
+    /// Right-preconditioned BiCGStab; returns (iterations, true relative residual).
+    fn bicgstab(&mut self, a: &Stencil5, b: &[f64], x: &mut [f64], bnorm: f64) -> Result<(usize, f64), SolveError> {
+        let (nx, rpb) = (self.nx, self.rpb);
+        let tol = self.params.rtol * bnorm;
+        let mut it = 0;
+        let mut restarts_without_progress = 0;
+        loop {
+            let rr0 = a.residual_into(b, x, &mut self.r);
+            if !rr0.is_finite() {
+                return Err(SolveError::NonFinite("the initial guess x"));
+            }
+            if rr0.sqrt() <= tol || it >= self.params.max_iter || restarts_without_progress > 2 {
+                return Ok((it, rr0.sqrt() / bnorm));
+            }
+            self.rhat.copy_from_slice(&self.r);
+            self.p.fill(0.0);
+            self.q.fill(0.0); // v
+            let (mut rho_old, mut alpha, mut omega) = (1.0f64, 1.0f64, 1.0f64);
+            let it_start = it;
+            while it < self.params.max_iter {
+                let rho = dot(&self.rhat, &self.r, nx, rpb);
+                if !(rho.abs() > 0.0) || !(omega.abs() > 0.0) {
+                    break; // breakdown: restart
+                }
+                it += 1;
+                let beta = (rho / rho_old) * (alpha / omega);
+                // p = r + beta (p - omega v)
+                bicg_p(&mut self.p, &self.r, &self.q, beta, omega, nx, rpb);
+                self.mg.vcycle(a, &self.p, &mut self.z); // y = M p
+                a.apply_dot(&self.z, &mut self.q); // v = A y
+                let rv = dot(&self.rhat, &self.q, nx, rpb);
+                if !(rv.abs() > 0.0) {
+                    break;
+                }
+                alpha = rho / rv;
+                // s = r - alpha v (in r)
+                let ss = axpy_norm(&mut self.r, &self.q, -alpha, nx, rpb);
+                if ss.sqrt() <= tol {
+                    axpy(x, &self.z, alpha, nx, rpb);
+                    break;
+                }
+                self.mg.vcycle(a, &self.r, &mut self.zz); // z = M s
+                a.apply_dot(&self.zz, &mut self.t); // t = A z
+                let (ts, tt) = dot2(&self.t, &self.r, nx, rpb);
+                omega = if tt > 0.0 { ts / tt } else { 0.0 };
+                // x += alpha y + omega z; r = s - omega t
+                let rr = bicg_update(x, &mut self.r, &self.z, &self.zz, &self.t, alpha, omega, nx, rpb);
+                rho_old = rho;
+                if rr.sqrt() <= tol {
+                    break;
+                }
+            }
+            let true_rr = a.residual_sq(b, x);
+            if true_rr.sqrt() <= tol || it >= self.params.max_iter {
+                return Ok((it, true_rr.sqrt() / bnorm));
+            }
+            if it == it_start {
+                restarts_without_progress += 1;
+            } else {
+                restarts_without_progress = 0;
+            }
+        }
+    }
+}
+
+/// Runs `f(offset, a_chunk, b_chunk)` over row blocks of two mutable vectors, summing the
+/// returned values in block order.
+#[inline]
+fn blocks2<F>(a: &mut [f64], b: &mut [f64], nx: usize, rpb: usize, f: F) -> f64
+where
+    F: Fn(usize, &mut [f64], &mut [f64]) -> f64 + Sync + Send,
+{
+    let chunk = rpb * nx;
+    if a.len() <= chunk {
+        return f(0, a, b);
+    }
+    let nb = a.len().div_ceil(chunk);
+    let mut partial = [0.0f64; MAX_BLOCKS];
+    a.par_chunks_mut(chunk)
+        .zip(b.par_chunks_mut(chunk))
+        .zip(partial[..nb].par_iter_mut())
+        .enumerate()
+        .for_each(|(k, ((ca, cb), p))| *p = f(k * chunk, ca, cb));
+    partial[..nb].iter().sum()
+}
+
+/// Like [`blocks2`] for one mutable vector.
+#[inline]
+fn blocks1<F>(a: &mut [f64], nx: usize, rpb: usize, f: F) -> f64
+where
+    F: Fn(usize, &mut [f64]) -> f64 + Sync + Send,
+{
+    super::blocks::sum_rows_mut(a, nx, rpb, |j0, c| f(j0 * nx, c))
+}
+
+/// `a . b`.
+fn dot(a: &[f64], b: &[f64], nx: usize, rpb: usize) -> f64 {
+    let ny = a.len() / nx;
+    sum_rows(ny, rpb, |j0, j1| {
+        let (s, e) = (j0 * nx, j1 * nx);
+        a[s..e].iter().zip(&b[s..e]).map(|(x, y)| x * y).sum()
+    })
+}
+
+/// `(a . b, a . a)`.
+fn dot2(a: &[f64], b: &[f64], nx: usize, rpb: usize) -> (f64, f64) {
+    let ab = dot(a, b, nx, rpb);
+    let aa = dot(a, a, nx, rpb);
+    (ab, aa)
+}
+
+/// `x += alpha p; r -= alpha q`, returning `r . r`.
+fn update_xr(x: &mut [f64], r: &mut [f64], p: &[f64], q: &[f64], alpha: f64, nx: usize, rpb: usize) -> f64 {
+    blocks2(x, r, nx, rpb, |o, xc, rc| {
+        let n = xc.len();
+        let (p, q) = (&p[o..o + n], &q[o..o + n]);
+        let mut acc = 0.0;
+        for i in 0..n {
+            xc[i] += alpha * p[i];
+            let v = rc[i] - alpha * q[i];
+            rc[i] = v;
+            acc += v * v;
+        }
+        acc
+    })
+}
+
+/// `p = z + beta p`.
+fn axpby(p: &mut [f64], z: &[f64], beta: f64, nx: usize, rpb: usize) {
+    blocks1(p, nx, rpb, |o, pc| {
+        for (v, &zz) in pc.iter_mut().zip(&z[o..]) {
+            *v = zz + beta * *v;
+        }
+        0.0
+    });
+}
+
+/// `y += alpha x`.
+fn axpy(y: &mut [f64], x: &[f64], alpha: f64, nx: usize, rpb: usize) {
+    blocks1(y, nx, rpb, |o, yc| {
+        for (v, &xx) in yc.iter_mut().zip(&x[o..]) {
+            *v += alpha * xx;
+        }
+        0.0
+    });
+}
+
+/// `y += alpha x`, returning `y . y`.
+fn axpy_norm(y: &mut [f64], x: &[f64], alpha: f64, nx: usize, rpb: usize) -> f64 {
+    blocks1(y, nx, rpb, |o, yc| {
+        let mut acc = 0.0;
+        for (v, &xx) in yc.iter_mut().zip(&x[o..]) {
+            *v += alpha * xx;
+            acc += *v * *v;
+        }
+        acc
+    })
+}
+
+/// `p = r + beta (p - omega v)`.
+fn bicg_p(p: &mut [f64], r: &[f64], v: &[f64], beta: f64, omega: f64, nx: usize, rpb: usize) {
+    blocks1(p, nx, rpb, |o, pc| {
+        let n = pc.len();
+        let (r, v) = (&r[o..o + n], &v[o..o + n]);
+        for i in 0..n {
+            pc[i] = r[i] + beta * (pc[i] - omega * v[i]);
+        }
+        0.0
+    });
+}
+
+/// `x += alpha y + omega z; r -= omega t`, returning `r . r`.
+#[allow(clippy::too_many_arguments)]
+fn bicg_update(
+    x: &mut [f64],
+    r: &mut [f64],
+    y: &[f64],
+    z: &[f64],
+    t: &[f64],
+    alpha: f64,
+    omega: f64,
+    nx: usize,
+    rpb: usize,
+) -> f64 {
+    blocks2(x, r, nx, rpb, |o, xc, rc| {
+        let n = xc.len();
+        let (y, z, t) = (&y[o..o + n], &z[o..o + n], &t[o..o + n]);
+        let mut acc = 0.0;
+        for i in 0..n {
+            xc[i] += alpha * y[i] + omega * z[i];
+            let v = rc[i] - omega * t[i];
+            rc[i] = v;
+            acc += v * v;
+        }
+        acc
+    })
+}
