@@ -73,6 +73,20 @@ pub enum RunError {
         /// The most likely cause, in words.
         cause: String,
     },
+    /// An implicit step could not be solved to its tolerance.
+    #[error("the {what} did not converge in step {step} (from t = {time} s): {detail}; advice: {advice}")]
+    NotConverged {
+        /// Step number (1-based).
+        step: u64,
+        /// Simulated time at the start of that step, s.
+        time: f64,
+        /// `linear solver` or `deferred correction`.
+        what: String,
+        /// Iterations and the residual or change reached.
+        detail: String,
+        /// What to try.
+        advice: String,
+    },
 }
 
 /// Shorthand for an [`ModelError::InvalidValue`].

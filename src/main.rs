@@ -228,7 +228,14 @@ fn run(path: &std::path::Path, out: Option<PathBuf>, sets: &[String], quiet: boo
             ));
         }
     };
-    let result = execute(&scn, &base, &mut progress);
+    let mut on_start = |warnings: &[String]| {
+        if !quiet {
+            for w in warnings {
+                bar.suspend(|| eprintln!("tinct: warning: {w}"));
+            }
+        }
+    };
+    let result = execute(&scn, &base, &mut on_start, &mut progress);
     bar.finish_and_clear();
     match result {
         Ok(outcome) => {
@@ -255,8 +262,14 @@ fn fmt_t(t: f64) -> String {
 }
 
 fn print_outcome(o: &tinct::run::RunOutcome) {
+    // A closed stdout (e.g. piped into `head`) is not an error of the run.
+    let _ = write_outcome(o, &mut std::io::stdout().lock());
+}
+
+fn write_outcome(o: &tinct::run::RunOutcome, out: &mut impl std::io::Write) -> std::io::Result<()> {
     let s = &o.summary;
-    println!(
+    writeln!(
+        out,
         "{} ({}): {} steps to t = {}, dt {:.3e} to {:.3e} s, {:.1} s wall ({:.1} M cell updates/s)",
         s.scenario,
         s.status,
@@ -266,31 +279,35 @@ fn print_outcome(o: &tinct::run::RunOutcome) {
         s.dt_max,
         s.wall_seconds,
         s.cell_updates_per_second / 1e6
-    );
-    println!("  mass: start {:.6e}, end {:.6e}; added {:.4e}, in {:.4e}, out {:.4e}, decayed {:.4e}; largest budget residual {:.1e}", s.initial_mass, s.final_mass, s.added, s.inflow, s.outflow, s.decayed, s.max_abs_residual);
-    println!("  concentration: min {:.4e}, max {:.4e}", s.min_ever, s.max_ever);
+    )?;
+    writeln!(out, "  mass: start {:.6e}, end {:.6e}; added {:.4e}, in {:.4e}, out {:.4e}, decayed {:.4e}; largest budget residual {:.1e}", s.initial_mass, s.final_mass, s.added, s.inflow, s.outflow, s.decayed, s.max_abs_residual)?;
+    writeln!(out, "  concentration: min {:.4e}, max {:.4e}", s.min_ever, s.max_ever)?;
     if !s.receptors.is_empty() {
-        println!(
+        writeln!(
+            out,
             "  {:<20} {:>12} {:>12} {:>14} {:>14}",
             "receptor", "peak", "peak at", "arrival", "above thr."
-        );
+        )?;
         for r in &s.receptors {
             let arr = r.arrival_time.map(fmt_t).unwrap_or_else(|| "-".into());
             let above = r.time_above_threshold.map(fmt_t).unwrap_or_else(|| "-".into());
-            println!(
+            writeln!(
+                out,
                 "  {:<20} {:>12.4e} {:>12} {:>14} {:>14}",
                 r.name,
                 r.peak,
                 fmt_t(r.peak_time),
                 arr,
                 above
-            );
+            )?;
         }
     }
-    println!(
+    writeln!(
+        out,
         "  results: {} (summary.json, budget.csv, receptors.csv, fields.nc, {} frames)",
         o.dir.display(),
         s.frames
-    );
-    println!("  caution: {}", s.caution);
+    )?;
+    writeln!(out, "  caution: {}", s.caution)?;
+    Ok(())
 }

@@ -73,8 +73,14 @@ pub fn standard_name(tracer: &str) -> Option<&'static str> {
     }
 }
 
-/// Runs `scn`, writing into `<out_base>/<name>/`.
-pub fn execute(scn: &Scenario, out_base: &Path, progress: &mut dyn FnMut(Progress)) -> Result<RunOutcome, RunFailure> {
+/// Runs `scn`, writing into `<out_base>/<name>/`. `on_start` receives the warnings about the
+/// numerical choices once the run is set up; `progress` is called after every step.
+pub fn execute(
+    scn: &Scenario,
+    out_base: &Path,
+    on_start: &mut dyn FnMut(&[String]),
+    progress: &mut dyn FnMut(Progress),
+) -> Result<RunOutcome, RunFailure> {
     // Everything that can be refused is refused before the folder is created.
     let model = scn
         .build_model()
@@ -91,6 +97,7 @@ pub fn execute(scn: &Scenario, out_base: &Path, progress: &mut dyn FnMut(Progres
     let mut receptors = ReceptorLog::new(&grid, &recs)
         .ok_or_else(|| RunFailure::BadInput(format!("{}: a receptor lies outside the grid", scn.path.display())))?;
 
+    on_start(&sim.warnings());
     let dir = out_base.join(&scn.name);
     let frames_dir = dir.join("frames");
     std::fs::create_dir_all(&frames_dir).map_err(|e| OutputError::io(&frames_dir, e))?;
@@ -114,6 +121,7 @@ pub fn execute(scn: &Scenario, out_base: &Path, progress: &mut dyn FnMut(Progres
     let started = Instant::now();
     let mut rows: Vec<BudgetRow> = vec![sim.budget_row()];
     let (mut dt_min, mut dt_max) = (f64::INFINITY, 0.0f64);
+    let mut iterations = (0usize, 0usize);
     receptors.record(0.0, 0.0, &sim.state.c);
     let write_frame = |sim: &Simulation, k: usize, fields: &mut FieldsWriter| -> Result<(), OutputError> {
         let values = sim.field();
@@ -148,6 +156,9 @@ pub fn execute(scn: &Scenario, out_base: &Path, progress: &mut dyn FnMut(Progres
             let st = &s.state;
             dt_min = dt_min.min(st.last_dt);
             dt_max = dt_max.max(st.last_dt);
+            let (it, corr) = s.last_iterations();
+            iterations.0 += it;
+            iterations.1 += corr;
             receptors.record(st.t, st.last_dt, &st.c);
             if st.step % log_every == 0 {
                 rows.push(s.budget_row());
@@ -187,6 +198,7 @@ pub fn execute(scn: &Scenario, out_base: &Path, progress: &mut dyn FnMut(Progres
         wall,
         written,
         failure.as_ref(),
+        iterations,
     );
     let json = serde_json::to_string_pretty(&summary).expect("summary serialises");
     output::write_atomic(&dir.join("summary.json"), json.as_bytes())?;

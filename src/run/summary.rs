@@ -88,6 +88,12 @@ pub struct RunSummary {
     pub scheme: SchemeFacts,
     /// Frames written.
     pub frames: usize,
+    /// Linear-solver iterations over the run (implicit schemes).
+    pub solver_iterations: usize,
+    /// Deferred-correction iterations over the run (implicit convection with a limiter).
+    pub corrections: usize,
+    /// Warnings about the numerical choices.
+    pub warnings: Vec<String>,
     /// Per-receptor statistics.
     pub receptors: Vec<ReceptorStats>,
     /// Files of the run, relative to its folder.
@@ -108,6 +114,7 @@ impl RunSummary {
         wall_seconds: f64,
         frames: usize,
         failure: Option<&RunError>,
+        iterations: (usize, usize),
     ) -> Self {
         let last = rows.last().copied().unwrap_or_else(|| sim.budget_row());
         let cells = sim.model.grid.cells();
@@ -172,6 +179,9 @@ impl RunSummary {
                 dt: scn.scheme.dt,
             },
             frames,
+            solver_iterations: iterations.0,
+            corrections: iterations.1,
+            warnings: sim.warnings(),
             receptors: receptors.to_vec(),
             files,
             caution: super::CAUTION.into(),

@@ -13,7 +13,7 @@ use crate::ops::boundary::{Boundaries, Side, SideKind};
 use crate::ops::limiter::Limiter;
 use crate::ops::sources::{Release, SourceSpec};
 use crate::output::colour::ColourScale;
-use crate::step::{max_step, Scheme};
+use crate::step::{max_step, Scheme, TimeScheme};
 use std::path::{Path, PathBuf};
 use toml::{Table, Value};
 
@@ -58,7 +58,16 @@ pub(super) const SOURCE: &[&str] = &["name", "at", "mass", "rate", "start", "sto
 /// `[[receptor]]` keys.
 pub(super) const RECEPTOR: &[&str] = &["name", "at", "threshold"];
 /// `[scheme]` keys.
-pub(super) const SCHEME: &[&str] = &["convection", "time", "stages", "courant", "dt"];
+pub(super) const SCHEME: &[&str] = &[
+    "convection",
+    "time",
+    "stages",
+    "courant",
+    "dt",
+    "theta",
+    "tolerance",
+    "max_iterations",
+];
 /// `[run]` keys.
 pub(super) const RUN: &[&str] = &["end", "frames", "log_every"];
 /// `[output]` keys.
@@ -917,23 +926,54 @@ fn scheme_section(root: Section, p: &mut Problems) -> Option<Scheme> {
             }
         }
     }
-    match s.string("time", p) {
-        Some("explicit") | None => {}
-        Some(t @ ("implicit" | "crank_nicolson" | "imex")) => {
-            p.add(
-                "scheme.time",
-                format!("\"{t}\" is not available in this version; available: `explicit`"),
-            );
-            ok = false;
+    if let Some(t) = s.string("time", p) {
+        match t.parse::<TimeScheme>() {
+            Ok(ts) => {
+                scheme.time = ts;
+                scheme.courant = ts.default_courant();
+            }
+            Err(e) => {
+                let names: Vec<&str> = TimeScheme::ALL.iter().map(|t| t.name()).collect();
+                p.add("scheme.time", format!("{e}{}", suggestion(t, &names)));
+                ok = false;
+            }
         }
-        Some(t) => {
-            p.add(
-                "scheme.time",
-                format!(
-                    "unknown time scheme \"{t}\"; allowed: `explicit` (implicit, crank_nicolson and imex are planned)"
-                ),
-            );
-            ok = false;
+    }
+    if s.has("theta") {
+        match check(
+            s.num("theta", p),
+            "scheme.theta",
+            |t| (0.5..=1.0).contains(&t),
+            "a number from 0.5 (Crank-Nicolson) to 1 (backward Euler)",
+            p,
+        ) {
+            Some(t) if matches!(scheme.time, TimeScheme::CrankNicolson | TimeScheme::Imex) => scheme.theta = Some(t),
+            Some(_) => {
+                p.add(
+                    "scheme.theta",
+                    "applies only with time = \"crank_nicolson\" or \"imex\"",
+                );
+                ok = false;
+            }
+            None => ok = false,
+        }
+    }
+    if s.has("tolerance") {
+        match check(
+            s.num("tolerance", p),
+            "scheme.tolerance",
+            |t| t > 0.0 && t < 1.0,
+            "a number in (0, 1)",
+            p,
+        ) {
+            Some(t) => scheme.tolerance = t,
+            None => ok = false,
+        }
+    }
+    if s.has("max_iterations") {
+        match s.int("max_iterations", 1, 100_000, p) {
+            Some(n) => scheme.max_iterations = n as usize,
+            None => ok = false,
         }
     }
     if s.has("stages") {
@@ -943,13 +983,16 @@ fn scheme_section(root: Section, p: &mut Problems) -> Option<Scheme> {
         }
     }
     if s.has("courant") {
-        match check(
-            s.num("courant", p),
-            "scheme.courant",
-            |c| c > 0.0 && c <= 1.0,
-            "a number > 0 and at most 1 (the explicit stability bound)",
-            p,
-        ) {
+        let explicit_convection = !scheme.time.implicit_convection();
+        let (cap, rule) = if explicit_convection {
+            (
+                1.0,
+                "a number > 0 and at most 1 (the stability bound of explicit convection)",
+            )
+        } else {
+            (1e6, "a number > 0 (implicit convection may exceed 1)")
+        };
+        match check(s.num("courant", p), "scheme.courant", |c| c > 0.0 && c <= cap, rule, p) {
             Some(c) => scheme.courant = c,
             None => ok = false,
         }

@@ -141,9 +141,17 @@ pub(super) fn write(s: &Scenario) -> String {
     line(String::new());
     line("[scheme]".into());
     line(format!("convection = {}", text(s.scheme.limiter.name())));
-    line("time = \"explicit\"".into());
+    line(format!("time = {}", text(s.scheme.time.name())));
     line(format!("stages = {}", s.scheme.stages));
     line(format!("courant = {}", num(s.scheme.courant)));
+    if s.scheme.time.is_implicit() {
+        match s.scheme.theta {
+            Some(th) => line(format!("theta = {}", num(th))),
+            None => line(format!("# theta: default, {} here", num(s.scheme.effective_theta()))),
+        }
+        line(format!("tolerance = {}", num(s.scheme.tolerance)));
+        line(format!("max_iterations = {}", s.scheme.max_iterations));
+    }
     match s.scheme.dt {
         Some(dt) => line(format!("dt = {}", num(dt))),
         None => line("# dt: automatic, from the Courant number and the diffusion limit".into()),

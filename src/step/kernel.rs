@@ -402,3 +402,55 @@ fn row_sum(xs: &[f64]) -> f64 {
     }
     sum.value()
 }
+
+/// Fluxes through the non-periodic sides of a padded field `c` (no interior work): the side
+/// terms of the budget for implicit steps, computed exactly as the sweep computes them.
+pub(crate) fn side_sums(m: &Model, c: &[f64], factor: f64, diffusion: f64) -> BlockSums {
+    let g = &m.grid;
+    let (nx, ny) = (g.nx, g.ny);
+    let (cx2, cy2) = (2.0 * diffusion * m.kx / g.dx, 2.0 * diffusion * m.ky / g.dy);
+    let b = &m.boundaries;
+    let mut sums = BlockSums::default();
+    for j in 0..ny {
+        let q = g.idx(0, j as isize);
+        side_face(b.west, Side::West, factor * m.flow.u[q], c[q], m.wet[q], cx2, &mut sums);
+        side_face(
+            b.east,
+            Side::East,
+            factor * m.flow.u[q + nx],
+            c[q + nx - 1],
+            m.wet[q + nx - 1],
+            cx2,
+            &mut sums,
+        );
+    }
+    let mut scratch = [0.0f64; 1];
+    for i in 0..nx {
+        let q = g.idx(i as isize, 0);
+        side_row(
+            b.south,
+            Side::South,
+            &m.flow.v[q..q + 1],
+            &c[q..q + 1],
+            &m.wet[q..q + 1],
+            factor,
+            cy2,
+            &mut scratch,
+            &mut sums,
+        );
+        let qn = g.idx(i as isize, ny as isize);
+        let qi = g.idx(i as isize, ny as isize - 1);
+        side_row(
+            b.north,
+            Side::North,
+            &m.flow.v[qn..qn + 1],
+            &c[qi..qi + 1],
+            &m.wet[qi..qi + 1],
+            factor,
+            cy2,
+            &mut scratch,
+            &mut sums,
+        );
+    }
+    sums
+}

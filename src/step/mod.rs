@@ -6,6 +6,7 @@
 //! one fused sweep of [`kernel`].
 
 mod explicit;
+mod implicit;
 pub(crate) mod kernel;
 
 use crate::budget::{Budget, BudgetRow};
@@ -16,14 +17,83 @@ use crate::ops::diffusion;
 use crate::ops::limiter::Limiter;
 use crate::ops::sources::decay_factor;
 use explicit::Explicit;
+use implicit::{Implicit, ImplicitFailure};
 use std::ops::ControlFlow;
+
+/// How time is advanced (DESIGN §2).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Default)]
+pub enum TimeScheme {
+    /// SSP Runge–Kutta with 1, 2 or 3 stages (Shu & Osher 1988).
+    #[default]
+    Explicit,
+    /// Backward Euler for convection and diffusion; convection's limiter enters as a deferred
+    /// correction (Khosla & Rubin 1974).
+    Implicit,
+    /// The theta method with theta = 0.5 by default (Crank & Nicolson 1947), deferred correction
+    /// as for `Implicit`.
+    CrankNicolson,
+    /// Explicit SSP Runge–Kutta convection, then implicit (theta-method, backward Euler by
+    /// default) diffusion.
+    Imex,
+}
+
+impl TimeScheme {
+    /// Every time scheme.
+    pub const ALL: [TimeScheme; 4] = [
+        TimeScheme::Explicit,
+        TimeScheme::Implicit,
+        TimeScheme::CrankNicolson,
+        TimeScheme::Imex,
+    ];
+
+    /// The scenario-file name.
+    pub fn name(self) -> &'static str {
+        match self {
+            TimeScheme::Explicit => "explicit",
+            TimeScheme::Implicit => "implicit",
+            TimeScheme::CrankNicolson => "crank_nicolson",
+            TimeScheme::Imex => "imex",
+        }
+    }
+
+    /// Whether any operator is solved implicitly (a linear solve per step).
+    pub fn is_implicit(self) -> bool {
+        self != TimeScheme::Explicit
+    }
+
+    /// Whether convection is treated implicitly (no Courant limit).
+    pub fn implicit_convection(self) -> bool {
+        matches!(self, TimeScheme::Implicit | TimeScheme::CrankNicolson)
+    }
+
+    /// The default target Courant number: 0.4 where convection is explicit, 5 where it is not.
+    pub fn default_courant(self) -> f64 {
+        if self.implicit_convection() {
+            5.0
+        } else {
+            0.4
+        }
+    }
+}
+
+impl std::str::FromStr for TimeScheme {
+    type Err = String;
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        Self::ALL.iter().copied().find(|t| t.name() == s).ok_or_else(|| {
+            let names: Vec<&str> = Self::ALL.iter().map(|t| t.name()).collect();
+            format!("unknown time scheme '{s}': allowed are {}", names.join(", "))
+        })
+    }
+}
 
 /// Numerical choices of a run.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Scheme {
     /// Convection scheme.
     pub limiter: Limiter,
-    /// SSP Runge–Kutta stages, 1 to 3.
+    /// Time scheme.
+    pub time: TimeScheme,
+    /// SSP Runge–Kutta stages, 1 to 3 (explicit convection).
     pub stages: u8,
     /// Target Courant number (sum over directions) for the automatic step.
     pub courant: f64,
@@ -31,16 +101,46 @@ pub struct Scheme {
     pub dt: Option<f64>,
     /// Safety factor on the explicit diffusion limit for the automatic step.
     pub diffusion_safety: f64,
+    /// Implicit weight of the theta method (0.5 to 1); `None`: 0.5 for Crank–Nicolson, 1 for
+    /// IMEX diffusion. Backward Euler is always 1.
+    pub theta: Option<f64>,
+    /// Relative residual at which a linear solve stops.
+    pub tolerance: f64,
+    /// Iteration cap of a linear solve.
+    pub max_iterations: usize,
+    /// Deferred-correction iterations stop when the largest change is below this fraction of
+    /// the largest value.
+    pub correction_tolerance: f64,
+    /// Cap on deferred-correction iterations per step.
+    pub max_corrections: usize,
 }
 
 impl Default for Scheme {
     fn default() -> Self {
         Self {
             limiter: Limiter::VanLeer,
+            time: TimeScheme::Explicit,
             stages: 2,
             courant: 0.4,
             dt: None,
             diffusion_safety: 0.9,
+            theta: None,
+            tolerance: 1e-10,
+            max_iterations: 100,
+            correction_tolerance: 1e-8,
+            max_corrections: 30,
+        }
+    }
+}
+
+impl Scheme {
+    /// The implicit weight actually used (1 for backward Euler; 0 for explicit).
+    pub fn effective_theta(&self) -> f64 {
+        match self.time {
+            TimeScheme::Explicit => 0.0,
+            TimeScheme::Implicit => 1.0,
+            TimeScheme::CrankNicolson => self.theta.unwrap_or(0.5),
+            TimeScheme::Imex => self.theta.unwrap_or(1.0),
         }
     }
 }
@@ -76,31 +176,65 @@ impl StepLimits {
     }
 }
 
-/// The largest step of a run: the fixed `dt`, checked against the stability bound, or the
-/// automatic `courant / (Courant rate + 2 diffusion rate)` capped by the diffusion limit times
-/// the safety factor (so convection-dominated runs meet the target Courant number and every
-/// automatic step keeps upwind with diffusion positive).
+/// The largest step of a run. A fixed `dt` is checked against the stability bound of the
+/// explicit parts (none for implicit and Crank–Nicolson; the convection bound for IMEX). The
+/// automatic step is, for explicit runs, `courant / (Courant rate + 2 diffusion rate)` capped
+/// by the diffusion limit times the safety factor (so convection-dominated runs meet the target
+/// Courant number and every automatic step keeps upwind with diffusion positive); otherwise
+/// `courant / Courant rate`, or `courant / (2 diffusion rate)` when nothing flows.
 pub fn max_step(model: &Model, scheme: &Scheme) -> Result<f64, ModelError> {
     if !(1..=3).contains(&scheme.stages) {
         return Err(invalid("scheme.stages", scheme.stages, "1, 2 or 3"));
     }
+    if let Some(th) = scheme.theta {
+        if !(0.5..=1.0).contains(&th) {
+            return Err(invalid(
+                "scheme.theta",
+                th,
+                "a number from 0.5 (Crank-Nicolson) to 1 (backward Euler)",
+            ));
+        }
+    }
+    if !(scheme.tolerance > 0.0 && scheme.tolerance < 1.0) {
+        return Err(invalid("scheme.tolerance", scheme.tolerance, "a number in (0, 1)"));
+    }
+    if scheme.max_iterations == 0 {
+        return Err(invalid(
+            "scheme.max_iterations",
+            scheme.max_iterations,
+            "an integer >= 1",
+        ));
+    }
+    if !(scheme.correction_tolerance > 0.0 && scheme.correction_tolerance < 1.0) {
+        return Err(invalid(
+            "scheme.correction_tolerance",
+            scheme.correction_tolerance,
+            "a number in (0, 1)",
+        ));
+    }
     let lim = StepLimits::of(model);
+    let conv = model.flow.courant_rate() * model.flow.max_factor();
+    let diff = model.diffusion_rate();
     if let Some(dt) = scheme.dt {
         positive("scheme.dt", dt)?;
-        if dt > lim.stable() * (1.0 + 1e-12) {
-            let reason = if lim.convection <= lim.diffusion {
-                format!("sum of Courant numbers {:.3} > 1", dt / lim.convection)
+        let bound = match scheme.time {
+            TimeScheme::Explicit => lim.stable(),
+            TimeScheme::Imex => lim.convection,
+            TimeScheme::Implicit | TimeScheme::CrankNicolson => f64::INFINITY,
+        };
+        if dt > bound * (1.0 + 1e-12) {
+            let reason = if lim.convection <= lim.diffusion || scheme.time == TimeScheme::Imex {
+                format!(
+                    "sum of Courant numbers {:.3} > 1 with explicit convection",
+                    dt / lim.convection
+                )
             } else {
                 format!(
                     "diffusion number Kx dt/dx^2 + Ky dt/dy^2 = {:.3} > 1/2",
                     0.5 * dt / lim.diffusion
                 )
             };
-            return Err(ModelError::UnstableDt {
-                dt,
-                bound: lim.stable(),
-                reason,
-            });
+            return Err(ModelError::UnstableDt { dt, bound, reason });
         }
         return Ok(dt);
     }
@@ -112,14 +246,62 @@ pub fn max_step(model: &Model, scheme: &Scheme) -> Result<f64, ModelError> {
             "a number in (0, 1]",
         ));
     }
-    let conv = model.flow.courant_rate() * model.flow.max_factor();
-    let rate = conv + 2.0 * model.diffusion_rate();
-    let dt = (scheme.courant / rate).min(scheme.diffusion_safety * lim.diffusion);
+    let dt = match scheme.time {
+        TimeScheme::Explicit => (scheme.courant / (conv + 2.0 * diff)).min(scheme.diffusion_safety * lim.diffusion),
+        // Without flow, the target applies to twice the diffusion number.
+        _ if conv > 0.0 => scheme.courant / conv,
+        _ => scheme.courant / (2.0 * diff),
+    };
+    if scheme.time == TimeScheme::Imex && scheme.courant > 1.0 && conv > 0.0 {
+        return Err(invalid(
+            "scheme.courant",
+            scheme.courant,
+            "at most 1 with explicit (imex) convection",
+        ));
+    }
     if !dt.is_finite() {
         // Nothing moves: no flow and no diffusion. Any step is exact; use one per output.
         return Ok(f64::INFINITY);
     }
     Ok(dt)
+}
+
+/// Warnings about the numerical choices of a run at step `dt` (words for the user; empty when
+/// nothing stands out). Crank–Nicolson (theta < 1) keeps positivity only while
+/// `2 (1 - theta) (Kx dt/dx^2 + Ky dt/dy^2) <= 1` for diffusion and `(1 - theta) C <= 1` for
+/// upwind convection (positive-coefficient analysis of the theta method; common practice):
+/// beyond that it rings on sharp fronts.
+pub fn scheme_warnings(model: &Model, scheme: &Scheme, dt: f64) -> Vec<String> {
+    let mut w = Vec::new();
+    if !dt.is_finite() {
+        return w;
+    }
+    let th = scheme.effective_theta();
+    let d = model.diffusion_rate() * dt;
+    let c = model.flow.courant_rate() * model.flow.max_factor() * dt;
+    if scheme.time.is_implicit() && th < 1.0 {
+        if 2.0 * (1.0 - th) * d > 1.0 {
+            w.push(format!(
+                "{} with theta = {th} at diffusion number {d:.3} (Kx dt/dx^2 + Ky dt/dy^2): above {:.3} it is not positivity-preserving and rings on sharp fronts; use theta closer to 1, time = \"implicit\", or a smaller step",
+                scheme.time.name(),
+                1.0 / (2.0 * (1.0 - th))
+            ));
+        }
+        if scheme.time.implicit_convection() && (1.0 - th) * c > 1.0 {
+            w.push(format!(
+                "{} with theta = {th} at Courant number {c:.3}: above {:.3} convection is not positivity-preserving and fronts ring; use theta closer to 1 or a smaller step",
+                scheme.time.name(),
+                1.0 / (1.0 - th)
+            ));
+        }
+    }
+    if scheme.time.implicit_convection() && scheme.limiter != Limiter::Upwind && c > 2.0 {
+        w.push(format!(
+            "deferred correction of '{}' at Courant number {c:.3} needs many corrections per step; a Courant number of 1 to 2, or upwind convection, is cheaper",
+            scheme.limiter.name()
+        ));
+    }
+    w
 }
 
 /// The marched state.
@@ -135,6 +317,39 @@ pub struct State {
     pub last_dt: f64,
     /// Largest per-cell Courant-number sum of the last step.
     pub last_courant: f64,
+}
+
+/// The report of an implicit step that did not converge.
+fn not_converged(f: ImplicitFailure, step: u64, time: f64) -> RunError {
+    match f {
+        ImplicitFailure::Solver(e) => RunError::NotConverged {
+            step,
+            time,
+            what: "linear solver".into(),
+            detail: e.to_string(),
+            advice:
+                "raise scheme.max_iterations or scheme.tolerance, or take a smaller step (scheme.courant or scheme.dt)"
+                    .into(),
+        },
+        ImplicitFailure::Correction { iterations, change } => RunError::NotConverged {
+            step,
+            time,
+            what: "deferred correction".into(),
+            detail: format!(
+                "after {iterations} corrections the field still changes by {change:.3e} of its largest value"
+            ),
+            advice:
+                "take a smaller step (scheme.courant about 1 to 2 suits deferred correction), or use upwind convection"
+                    .into(),
+        },
+    }
+}
+
+/// The stepper of a run, chosen once from the time scheme.
+#[derive(Debug)]
+enum Stepper {
+    Explicit(Explicit),
+    Implicit(Box<Implicit>),
 }
 
 /// Mass that instantaneous and continuous sources may release in (t, t + dt].
@@ -153,7 +368,7 @@ pub struct Simulation {
     pub state: State,
     /// The mass budget.
     pub budget: Budget,
-    stepper: Explicit,
+    stepper: Stepper,
     dt_max: f64,
     scale: f64,
 }
@@ -201,7 +416,13 @@ impl Simulation {
                 scale.1 = scale.1.max(value);
             }
         }
-        let stepper = Explicit::new(&model);
+        let stepper = if scheme.time.is_implicit() {
+            let imp = Implicit::new(&model, &scheme, dt_max)
+                .map_err(|e| invalid("scheme (implicit solver set-up)", e, "a solvable operator"))?;
+            Stepper::Implicit(Box::new(imp))
+        } else {
+            Stepper::Explicit(Explicit::new(&model))
+        };
         let scale = scale.0.abs().max(scale.1.abs());
         Ok(Self {
             state: State {
@@ -267,7 +488,13 @@ impl Simulation {
         let decay = decay_factor(m.decay_rate, dt);
         // Values beyond a thousand times the largest the data can explain are a blow-up.
         let limit = 1e3 * (*scale + (budget.added() + max_release(m, state.t, dt)) / m.cell_volume());
-        let out = stepper.advance(m, scheme, state, dt, decay, limit, 1.0);
+        let out = match stepper {
+            Stepper::Explicit(ex) => ex.advance(m, scheme, state, dt, decay, limit, 1.0),
+            Stepper::Implicit(imp) => match imp.advance(m, scheme, state, dt, decay, limit) {
+                Ok(o) => o,
+                Err(f) => return Err(not_converged(f, state.step + 1, state.t)),
+            },
+        };
         for side in Side::ALL {
             let [i, o] = out.side_mass[side.index()];
             if i != 0.0 || o != 0.0 {
@@ -294,6 +521,19 @@ impl Simulation {
             return Err(self.diverged());
         }
         Ok(())
+    }
+
+    /// Linear-solver iterations and deferred corrections of the last step (0 for explicit).
+    pub fn last_iterations(&self) -> (usize, usize) {
+        match &self.stepper {
+            Stepper::Explicit(_) => (0, 0),
+            Stepper::Implicit(imp) => (imp.last_iterations, imp.last_corrections),
+        }
+    }
+
+    /// Warnings about this run's numerical choices at its largest step.
+    pub fn warnings(&self) -> Vec<String> {
+        scheme_warnings(&self.model, &self.scheme, self.dt_max)
     }
 
     /// Builds the divergence report: the worst cell and the likely cause.

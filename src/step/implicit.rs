@@ -1,0 +1,388 @@
+//! Implicit time stepping: backward Euler and the theta method (Crank–Nicolson) for convection
+//! and diffusion together, and IMEX (explicit SSP-RK convection, then implicit diffusion).
+//!
+//! The matrix holds first-order upwind convection and central diffusion at the new time level,
+//! `(I - theta dt L_up) c^{n+1} = c^n + (1 - theta) dt L(c^n) + theta dt L_HO(c^{n+1,k})`, where
+//! `L_HO = L_limiter - L_up` is the limiter's high-order part, taken from the previous iterate
+//! as a deferred correction (Khosla & Rubin 1974) and iterated within the step until it settles.
+//! Every explicit piece reuses the fused explicit kernel, so the face values, side conditions
+//! and land treatment are those of the explicit path. Side fluxes enter the budget with the
+//! theta weights; the budget then closes to the solver tolerance.
+
+use super::explicit::{blocks_for, book_sides, sweep, Explicit, StepOutcome};
+use super::kernel::{self, Block, StageParams};
+use super::{Scheme, State, TimeScheme};
+use crate::grid::Grid;
+use crate::model::Model;
+use crate::ops::boundary::{fill_ghosts, Side, SideKind};
+use crate::ops::limiter::Limiter;
+use crate::solve::{ExtraCoefs, Sides, SolveError, Solver, SolverParams, Stencil5};
+
+/// Why an implicit step failed.
+#[derive(Debug, Clone)]
+pub(crate) enum ImplicitFailure {
+    /// The linear solver stopped above its tolerance.
+    Solver(SolveError),
+    /// The deferred correction kept changing.
+    Correction { iterations: usize, change: f64 },
+}
+
+/// The implicit stepper and its scratch (all allocated once).
+#[derive(Debug)]
+pub(crate) struct Implicit {
+    time: TimeScheme,
+    theta: f64,
+    blocks: Vec<Block>,
+    rows_per_block: usize,
+    /// IMEX: the explicit convection stepper.
+    explicit: Option<Explicit>,
+    rhs: Vec<f64>,
+    iterate: Vec<f64>,
+    hi: Vec<f64>,
+    lo: Vec<f64>,
+    b: Vec<f64>,
+    x: Vec<f64>,
+    prev: Vec<f64>,
+    bc: Vec<f64>,
+    extra: [Vec<f64>; 5],
+    a: Stencil5,
+    solver: Solver,
+    assembled: Option<(f64, f64)>,
+    /// Linear-solver iterations of the last step, summed over corrections.
+    pub last_iterations: usize,
+    /// Deferred-correction iterations of the last step.
+    pub last_corrections: usize,
+}
+
+impl Implicit {
+    /// Sets up the stepper for `scheme.time` (not explicit), sizing every buffer.
+    pub(crate) fn new(m: &Model, scheme: &Scheme, dt: f64) -> Result<Self, SolveError> {
+        let n = m.grid.cells();
+        let (blocks, rows_per_block) = blocks_for(m);
+        let theta = scheme.effective_theta();
+        let sides = Sides::from_boundaries(&m.boundaries);
+        let dt0 = if dt.is_finite() { dt } else { 1.0 };
+        let a = Stencil5::diffusion(&m.grid, &m.mask, sides, theta * dt0 * m.kx, theta * dt0 * m.ky)?;
+        let params = SolverParams {
+            rtol: scheme.tolerance,
+            max_iter: scheme.max_iterations,
+            ..SolverParams::default()
+        };
+        let solver = Solver::new(&a, params)?;
+        let padded = || vec![f64::NAN; m.grid.padded_len()];
+        Ok(Self {
+            time: scheme.time,
+            theta,
+            blocks,
+            rows_per_block,
+            explicit: (scheme.time == TimeScheme::Imex).then(|| Explicit::new(m)),
+            rhs: padded(),
+            iterate: padded(),
+            hi: padded(),
+            lo: padded(),
+            b: vec![0.0; n],
+            x: vec![0.0; n],
+            prev: vec![0.0; n],
+            bc: vec![0.0; n],
+            extra: std::array::from_fn(|_| vec![0.0; n]),
+            a,
+            solver,
+            assembled: None,
+            last_iterations: 0,
+            last_corrections: 0,
+        })
+    }
+
+    /// Assembles `I - theta dt (L_up + L_diff)` at flow factor `factor` (convection only when
+    /// it is implicit) and the constant side terms of the right-hand side, unless already done
+    /// for this `(dt, factor)`.
+    fn assemble(&mut self, m: &Model, dt: f64, factor: f64) -> Result<(), SolveError> {
+        let conv_factor = if self.time.implicit_convection() { factor } else { 0.0 };
+        if self.assembled == Some((dt, conv_factor)) {
+            return Ok(());
+        }
+        let td = self.theta * dt;
+        let g = &m.grid;
+        let (nx, ny) = (g.nx, g.ny);
+        let [d, aw, ae, as_, an] = &mut self.extra;
+        self.bc.iter_mut().for_each(|v| *v = 0.0);
+        let b = &m.boundaries;
+        for j in 0..ny {
+            for i in 0..nx {
+                let k = j * nx + i;
+                let p = g.idx(i as isize, j as isize);
+                let uw = conv_factor * m.flow.u[p];
+                let ue = conv_factor * m.flow.u[p + 1];
+                let vs = conv_factor * m.flow.v[p];
+                let vn = conv_factor * m.flow.v[p + g.stride()];
+                let (cx, cy) = (td / g.dx, td / g.dy);
+                let mut diag = 0.0;
+                let mut bc = 0.0;
+                // West face: flux into the cell is uw * (upwind value).
+                face_terms(i == 0, b.west, uw, cx, true, &mut diag, &mut aw[k], &mut bc);
+                face_terms(i + 1 == nx, b.east, ue, cx, false, &mut diag, &mut ae[k], &mut bc);
+                face_terms(j == 0, b.south, vs, cy, true, &mut diag, &mut as_[k], &mut bc);
+                face_terms(j + 1 == ny, b.north, vn, cy, false, &mut diag, &mut an[k], &mut bc);
+                if !m.mask.is_wet(i, j) {
+                    diag = 0.0;
+                    bc = 0.0;
+                    aw[k] = 0.0;
+                    ae[k] = 0.0;
+                    as_[k] = 0.0;
+                    an[k] = 0.0;
+                }
+                d[k] = diag;
+                self.bc[k] = bc;
+            }
+        }
+        // Dirichlet diffusion at fixed sides: conductance 2 theta dt K / h^2 times the value.
+        dirichlet_terms(g, &m.mask, &m.boundaries, td * m.kx, td * m.ky, &mut self.bc);
+        let extra = ExtraCoefs {
+            diag: d,
+            aw,
+            ae,
+            as_,
+            an,
+        };
+        let sides = Sides::from_boundaries(&m.boundaries);
+        self.a.assemble(g, &m.mask, sides, td * m.kx, td * m.ky, Some(&extra))?;
+        self.solver.update(&self.a)?;
+        self.assembled = Some((dt, conv_factor));
+        Ok(())
+    }
+
+    /// Advances `state.c` by one step of `dt` (time and step count are left to the caller).
+    #[allow(clippy::too_many_arguments)]
+    pub(crate) fn advance(
+        &mut self,
+        m: &Model,
+        scheme: &Scheme,
+        state: &mut State,
+        dt: f64,
+        decay: f64,
+        limit: f64,
+    ) -> Result<StepOutcome, ImplicitFailure> {
+        let g = m.grid;
+        let th = self.theta;
+        let t0 = state.t;
+        let f1 = m.flow.factor(t0 + dt);
+        let mut out = StepOutcome::default();
+        let implicit_conv = self.time.implicit_convection();
+        // IMEX: convection first, explicitly; then the diffusion solve starts from its result.
+        if let Some(ex) = self.explicit.as_mut() {
+            let conv = ex.advance(m, scheme, state, dt, 1.0, limit, 0.0);
+            out = conv;
+            out.transported = 0.0;
+        } else {
+            out.max_factor = m.flow.factor(t0).abs().max(f1.abs());
+        }
+        // Explicit part: rhs = c + (1 - theta) dt L(c) (convection at t0 only when implicit).
+        fill_ghosts(&g, &m.boundaries, &mut state.c);
+        if th < 1.0 {
+            let (lim, factor) = if implicit_conv {
+                (scheme.limiter, m.flow.factor(t0))
+            } else {
+                (Limiter::Upwind, 0.0)
+            };
+            let p = stage_params((1.0 - th) * dt, factor, 1.0, limit);
+            let sums = sweep(
+                m,
+                lim,
+                &state.c,
+                &state.c,
+                &mut self.rhs,
+                &mut self.blocks,
+                self.rows_per_block,
+                p,
+            );
+            book_sides(m, &sums, 1.0, (1.0 - th) * dt, &mut out.side_mass);
+        } else {
+            self.rhs.copy_from_slice(&state.c);
+        }
+        self.assemble(m, dt, f1).map_err(ImplicitFailure::Solver)?;
+        copy_interior(&g, &state.c, &mut self.x);
+        let corrections = implicit_conv && scheme.limiter != Limiter::Upwind;
+        let max_it = if corrections { scheme.max_corrections.max(1) } else { 1 };
+        self.last_iterations = 0;
+        self.last_corrections = 0;
+        let mut change = 0.0;
+        for it in 0..max_it {
+            copy_interior(&g, &self.rhs, &mut self.b);
+            for (bv, c) in self.b.iter_mut().zip(&self.bc) {
+                *bv += c;
+            }
+            if corrections {
+                // theta dt (L_limiter - L_up)(current iterate), convection only.
+                spread_interior(&g, &self.x, &mut self.iterate);
+                fill_ghosts(&g, &m.boundaries, &mut self.iterate);
+                let p = stage_params(th * dt, f1, 0.0, limit);
+                sweep(
+                    m,
+                    scheme.limiter,
+                    &self.iterate,
+                    &self.iterate,
+                    &mut self.hi,
+                    &mut self.blocks,
+                    self.rows_per_block,
+                    p,
+                );
+                sweep(
+                    m,
+                    Limiter::Upwind,
+                    &self.iterate,
+                    &self.iterate,
+                    &mut self.lo,
+                    &mut self.blocks,
+                    self.rows_per_block,
+                    p,
+                );
+                for j in 0..g.ny {
+                    let q = g.idx(0, j as isize);
+                    let row = &mut self.b[j * g.nx..(j + 1) * g.nx];
+                    for ((bv, h), l) in row.iter_mut().zip(&self.hi[q..q + g.nx]).zip(&self.lo[q..q + g.nx]) {
+                        *bv += h - l;
+                    }
+                }
+                self.prev.copy_from_slice(&self.x);
+            }
+            let stats = self
+                .solver
+                .solve(&self.a, &self.b, &mut self.x)
+                .map_err(ImplicitFailure::Solver)?;
+            self.last_iterations += stats.iterations;
+            self.last_corrections = it + 1;
+            if !corrections {
+                break;
+            }
+            let (mut dmax, mut xmax) = (0.0f64, 0.0f64);
+            for (x, p) in self.x.iter().zip(&self.prev) {
+                dmax = dmax.max((x - p).abs());
+                xmax = xmax.max(x.abs());
+            }
+            change = dmax / xmax.max(f64::MIN_POSITIVE);
+            if change <= scheme.correction_tolerance {
+                break;
+            }
+            if it + 1 == max_it {
+                return Err(ImplicitFailure::Correction {
+                    iterations: max_it,
+                    change,
+                });
+            }
+        }
+        let _ = change;
+        spread_interior(&g, &self.x, &mut state.c);
+        // Side fluxes at the new level, with the implicit weight.
+        let sums = kernel::side_sums(m, &state.c, if implicit_conv { f1 } else { 0.0 }, 1.0);
+        book_sides(m, &sums, 1.0, th * dt, &mut out.side_mass);
+        // Decay (exact factor) and the blow-up check.
+        let mut transported = crate::field::Neumaier::default();
+        let mut bad = false;
+        for j in 0..g.ny {
+            let q = g.idx(0, j as isize);
+            let row = &mut state.c[q..q + g.nx];
+            transported.add(crate::field::sum_compensated(row));
+            for v in row.iter_mut() {
+                bad |= !(v.abs() <= limit);
+                *v *= decay;
+            }
+        }
+        out.transported = transported.value();
+        out.bad |= bad;
+        Ok(out)
+    }
+}
+
+fn stage_params(dt: f64, factor: f64, diffusion: f64, limit: f64) -> StageParams {
+    StageParams {
+        dt,
+        factor,
+        alpha: 0.0,
+        beta: 1.0,
+        final_stage: false,
+        decay: 1.0,
+        limit,
+        diffusion,
+    }
+}
+
+/// Matrix and right-hand-side terms of one face of a cell for upwind convection:
+/// `w` the face velocity (positive along the axis), `c = theta dt / h`, `low` for the
+/// west/south face. On a non-periodic side the coupling is dropped and the side value goes to
+/// the right-hand side (open inflow, fixed), or the outflow stays on the diagonal (open).
+#[allow(clippy::too_many_arguments)]
+fn face_terms(on_side: bool, kind: SideKind, w: f64, c: f64, low: bool, diag: &mut f64, off: &mut f64, bc: &mut f64) {
+    // Outflow through this face leaves with the cell value; inflow comes with the neighbour's.
+    let (out_v, in_v) = if low {
+        ((-w).max(0.0), w.max(0.0))
+    } else {
+        (w.max(0.0), (-w).max(0.0))
+    };
+    if !on_side || kind == SideKind::Periodic {
+        *diag += c * out_v;
+        *off = c * in_v;
+        return;
+    }
+    *off = 0.0;
+    match kind {
+        SideKind::Wall | SideKind::Periodic => {}
+        SideKind::Open { value } => {
+            *diag += c * out_v;
+            *bc += c * in_v * value;
+        }
+        SideKind::Fixed { value } => {
+            // Flux w * value through the face whatever its direction: in for low sides when
+            // w > 0, out for high sides when w > 0.
+            *bc += if low { c * w * value } else { -c * w * value };
+        }
+    }
+}
+
+/// Adds the Dirichlet diffusion terms of fixed sides to the right-hand side.
+fn dirichlet_terms(
+    g: &Grid,
+    mask: &crate::grid::Mask,
+    b: &crate::ops::boundary::Boundaries,
+    tkx: f64,
+    tky: f64,
+    bc: &mut [f64],
+) {
+    let (gx, gy) = (2.0 * tkx / (g.dx * g.dx), 2.0 * tky / (g.dy * g.dy));
+    for side in Side::ALL {
+        let SideKind::Fixed { value } = b.get(side) else {
+            continue;
+        };
+        let cells: Vec<(usize, usize)> = match side {
+            Side::West => (0..g.ny).map(|j| (0, j)).collect(),
+            Side::East => (0..g.ny).map(|j| (g.nx - 1, j)).collect(),
+            Side::South => (0..g.nx).map(|i| (i, 0)).collect(),
+            Side::North => (0..g.nx).map(|i| (i, g.ny - 1)).collect(),
+        };
+        let gc = if matches!(side, Side::West | Side::East) {
+            gx
+        } else {
+            gy
+        };
+        for (i, j) in cells {
+            if mask.is_wet(i, j) {
+                bc[j * g.nx + i] += gc * value;
+            }
+        }
+    }
+}
+
+/// Copies the interior of a padded field into an `nx * ny` vector.
+fn copy_interior(g: &Grid, padded: &[f64], out: &mut [f64]) {
+    for j in 0..g.ny {
+        let q = g.idx(0, j as isize);
+        out[j * g.nx..(j + 1) * g.nx].copy_from_slice(&padded[q..q + g.nx]);
+    }
+}
+
+/// Writes an `nx * ny` vector into the interior of a padded field.
+fn spread_interior(g: &Grid, v: &[f64], padded: &mut [f64]) {
+    for j in 0..g.ny {
+        let q = g.idx(0, j as isize);
+        padded[q..q + g.nx].copy_from_slice(&v[j * g.nx..(j + 1) * g.nx]);
+    }
+}
