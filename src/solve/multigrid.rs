@@ -320,7 +320,17 @@ fn relax_row(c: Row, inv: &[f64], b: &[f64], xs: &[f64], x: &mut [f64], xn: &[f6
     }
     let mid_end = cols.min(n - 1);
     while i < mid_end {
-        x[i] = (b[i] + w[i] * x[i - 1] + e[i] * x[i + 1] + s[i] * xs[i] + nn[i] * xn[i]) * inv[i];
+        // SAFETY: 1 <= i < mid_end <= n - 1, so i - 1, i and i + 1 are below n, the length of
+        // every slice here (all were cut to n above).
+        unsafe {
+            let v = (b.get_unchecked(i)
+                + w.get_unchecked(i) * x.get_unchecked(i - 1)
+                + e.get_unchecked(i) * x.get_unchecked(i + 1)
+                + s.get_unchecked(i) * xs.get_unchecked(i)
+                + nn.get_unchecked(i) * xn.get_unchecked(i))
+                * inv.get_unchecked(i);
+            *x.get_unchecked_mut(i) = v;
+        }
         i += 2;
     }
     if i == n - 1 && i < cols && i > 0 {
@@ -358,9 +368,18 @@ fn residual_restrict_row(c: Row, xs: &[f64], x: &[f64], xn: &[f64], b: &[f64], o
     }
     out[0] += res(0, x[n - 1], x[1]);
     if sx == 1 {
+        // Interior cells 1..n-1, two per aggregate (cell i belongs to aggregate i / 2).
         let out = &mut out[..n.div_ceil(2)];
-        for i in 1..n - 1 {
-            out[i >> 1] += b[i] - (d[i] * x[i] - (w[i] * x[i - 1] + e[i] * x[i + 1] + s[i] * xs[i] + nn[i] * xn[i]));
+        let r = |i: usize| b[i] - (d[i] * x[i] - (w[i] * x[i - 1] + e[i] * x[i + 1] + s[i] * xs[i] + nn[i] * xn[i]));
+        out[0] += r(1);
+        let pairs = (n - 2) / 2;
+        for (k, o) in out.iter_mut().enumerate().take(pairs + 1).skip(1) {
+            let i = 2 * k;
+            if i + 1 < n - 1 {
+                *o += r(i) + r(i + 1);
+            } else if i < n - 1 {
+                *o += r(i);
+            }
         }
     } else {
         let out = &mut out[..n];

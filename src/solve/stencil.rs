@@ -569,8 +569,16 @@ pub(crate) fn apply_row(c: Row, xs: &[f64], x: &[f64], xn: &[f64], y: &mut [f64]
         return;
     }
     y[0] = d[0] * x[0] - (w[0] * x[n - 1] + e[0] * x[1] + s[0] * xs[0] + nn[0] * xn[0]);
-    for i in 1..n - 1 {
-        y[i] = d[i] * x[i] - (w[i] * x[i - 1] + e[i] * x[i + 1] + s[i] * xs[i] + nn[i] * xn[i]);
+    {
+        // Interior cells on slices of equal length, so the loop has no bounds checks and
+        // vectorises.
+        let m = n - 2;
+        let (d, w, e, s, nn) = (&d[1..=m], &w[1..=m], &e[1..=m], &s[1..=m], &nn[1..=m]);
+        let (xw, xc, xe, xs, xn) = (&x[..m], &x[1..=m], &x[2..], &xs[1..=m], &xn[1..=m]);
+        let y = &mut y[1..=m];
+        for i in 0..m {
+            y[i] = d[i] * xc[i] - (w[i] * xw[i] + e[i] * xe[i] + s[i] * xs[i] + nn[i] * xn[i]);
+        }
     }
     let l = n - 1;
     y[l] = d[l] * x[l] - (w[l] * x[l - 1] + e[l] * x[0] + s[l] * xs[l] + nn[l] * xn[l]);
@@ -590,9 +598,14 @@ fn residual_row_sq(c: Row, xs: &[f64], x: &[f64], xn: &[f64], b: &[f64]) -> f64 
     let mut acc = 0.0;
     let v0 = r(0, x[n - 1], x[1]);
     acc += v0 * v0;
-    for i in 1..n - 1 {
-        let v = b[i] - (d[i] * x[i] - (w[i] * x[i - 1] + e[i] * x[i + 1] + s[i] * xs[i] + nn[i] * xn[i]));
-        acc += v * v;
+    {
+        let m = n - 2;
+        let (d, w, e, s, nn) = (&d[1..=m], &w[1..=m], &e[1..=m], &s[1..=m], &nn[1..=m]);
+        let (xw, xc, xe, xs, xn, b) = (&x[..m], &x[1..=m], &x[2..], &xs[1..=m], &xn[1..=m], &b[1..=m]);
+        for i in 0..m {
+            let v = b[i] - (d[i] * xc[i] - (w[i] * xw[i] + e[i] * xe[i] + s[i] * xs[i] + nn[i] * xn[i]));
+            acc += v * v;
+        }
     }
     let v1 = r(n - 1, x[n - 2], x[0]);
     acc + v1 * v1
