@@ -247,7 +247,7 @@ fn run(path: &std::path::Path, out: Option<PathBuf>, sets: &[String], quiet: boo
             code: 1,
             message: format!("writing results: {e}"),
         }),
-        Err(RunFailure::Diverged { error, outcome }) => {
+        Err(RunFailure::Stopped { error, outcome }) => {
             print_outcome(&outcome);
             Err(Failure {
                 code: 1,

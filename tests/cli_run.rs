@@ -279,3 +279,89 @@ fn a_diverging_run_exits_1_with_step_time_cell_and_keeps_its_logs() {
     assert_eq!(summary["status"], "diverged");
     assert!(dir.join("budget.csv").is_file() && dir.join("fields.nc").is_file());
 }
+
+#[test]
+fn crank_nicolson_at_a_large_diffusion_number_warns_on_stderr_and_in_the_summary() {
+    let tmp = tempfile::tempdir().unwrap();
+    let puff = root().join("scenarios/gaussian-puff.toml");
+    let out = tinct(
+        &[
+            "run",
+            puff.to_str().unwrap(),
+            "--out",
+            "results",
+            "--set",
+            "scheme.time=crank_nicolson",
+            "--set",
+            "run.frames=2",
+        ],
+        tmp.path(),
+    );
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(out.status.success(), "{stderr}");
+    assert!(
+        stderr.contains("warning") && stderr.contains("diffusion number"),
+        "{stderr}"
+    );
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(tmp.path().join("results/gaussian-puff/summary.json")).unwrap())
+            .unwrap();
+    assert_eq!(summary["scheme"]["time"], "crank_nicolson");
+    assert!(summary["warnings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .any(|w| w.as_str().unwrap().contains("rings")));
+    assert!(summary["solver_iterations"].as_u64().unwrap() > 0);
+    // With --quiet nothing but errors reaches stderr.
+    let out = tinct(
+        &[
+            "run",
+            puff.to_str().unwrap(),
+            "--out",
+            "results",
+            "--quiet",
+            "--set",
+            "scheme.time=crank_nicolson",
+            "--set",
+            "run.frames=2",
+        ],
+        tmp.path(),
+    );
+    assert!(
+        out.status.success() && out.stderr.is_empty(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+}
+
+#[test]
+fn a_solver_that_cannot_converge_stops_the_run_with_exit_1_the_step_and_the_residual() {
+    let tmp = tempfile::tempdir().unwrap();
+    let puff = root().join("scenarios/gaussian-puff.toml");
+    let out = tinct(
+        &[
+            "run",
+            puff.to_str().unwrap(),
+            "--out",
+            "results",
+            "--quiet",
+            "--set",
+            "scheme.time=implicit",
+            "--set",
+            "scheme.max_iterations=1",
+            "--set",
+            "scheme.tolerance=1e-15",
+        ],
+        tmp.path(),
+    );
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(1), "{stderr}");
+    assert!(
+        stderr.contains("did not converge in step 1")
+            && stderr.contains("relative residual")
+            && stderr.contains("advice"),
+        "{stderr}"
+    );
+    assert!(tmp.path().join("results/gaussian-puff/budget.csv").is_file());
+}

@@ -54,9 +54,10 @@ pub enum RunFailure {
     /// An output file could not be written (exit code 1).
     #[error(transparent)]
     Output(#[from] OutputError),
-    /// The run diverged; the outputs up to that step were written (exit code 1).
+    /// The run diverged or a solve failed; the outputs up to that step were written (exit
+    /// code 1).
     #[error("{error}")]
-    Diverged {
+    Stopped {
         /// What happened.
         error: RunError,
         /// The partial run.
@@ -205,7 +206,7 @@ pub fn execute(
     let outcome = RunOutcome { dir, summary };
     match failure {
         None => Ok(outcome),
-        Some(error) => Err(RunFailure::Diverged {
+        Some(error) => Err(RunFailure::Stopped {
             error,
             outcome: Box::new(outcome),
         }),

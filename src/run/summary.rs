@@ -14,8 +14,12 @@ pub struct SchemeFacts {
     pub convection: String,
     /// Time scheme.
     pub time: String,
-    /// SSP Runge–Kutta stages.
+    /// SSP Runge–Kutta stages (explicit convection).
     pub stages: u8,
+    /// Implicit weight of the theta method (0 for explicit, 1 for backward Euler).
+    pub theta: f64,
+    /// Linear-solver tolerance (implicit schemes).
+    pub tolerance: Option<f64>,
     /// Target Courant number of the automatic step.
     pub courant: f64,
     /// The fixed step, if one was given.
@@ -42,7 +46,7 @@ pub struct RunSummary {
     pub program: String,
     /// Scenario name.
     pub scenario: String,
-    /// `completed` or `diverged`.
+    /// `completed`, `diverged` or `not_converged`.
     pub status: String,
     /// Why the run stopped early, if it did.
     pub error: Option<String>,
@@ -132,7 +136,12 @@ impl RunSummary {
         Self {
             program: format!("tinct {}", env!("CARGO_PKG_VERSION")),
             scenario: scn.name.clone(),
-            status: if failure.is_some() { "diverged" } else { "completed" }.into(),
+            status: match failure {
+                None => "completed",
+                Some(RunError::Diverged { .. }) => "diverged",
+                Some(_) => "not_converged",
+            }
+            .into(),
             error: failure.map(|e| e.to_string()),
             cells,
             wet_cells: sim.model.mask.wet_count(),
@@ -173,8 +182,10 @@ impl RunSummary {
             max_flow_divergence: sim.model.flow.max_divergence(),
             scheme: SchemeFacts {
                 convection: scn.scheme.limiter.name().into(),
-                time: "explicit".into(),
+                time: scn.scheme.time.name().into(),
                 stages: scn.scheme.stages,
+                theta: scn.scheme.effective_theta(),
+                tolerance: scn.scheme.time.is_implicit().then_some(scn.scheme.tolerance),
                 courant: scn.scheme.courant,
                 dt: scn.scheme.dt,
             },

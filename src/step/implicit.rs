@@ -44,6 +44,8 @@ pub(crate) struct Implicit {
     x: Vec<f64>,
     prev: Vec<f64>,
     bc: Vec<f64>,
+    /// The previous correction's high-order term (for under-relaxation).
+    ho: Vec<f64>,
     extra: [Vec<f64>; 5],
     a: Stencil5,
     solver: Solver,
@@ -52,7 +54,18 @@ pub(crate) struct Implicit {
     pub last_iterations: usize,
     /// Deferred-correction iterations of the last step.
     pub last_corrections: usize,
+    /// Steps whose correction stalled above its tolerance (but below [`STALL_LIMIT`]).
+    pub unsettled_steps: usize,
 }
+
+/// A deferred correction that still changes the field by more than this fraction of its
+/// largest value after the iteration cap stops the run; below it, the step is accepted and
+/// counted as unsettled (compressive limiters can make the correction cycle at a tiny level).
+pub(crate) const STALL_LIMIT: f64 = 1e-3;
+
+/// Under-relaxation of the high-order term from the fourth correction on: the fixed point is
+/// unchanged, but cycling between limiter branches is damped.
+const RELAX: f64 = 0.5;
 
 impl Implicit {
     /// Sets up the stepper for `scheme.time` (not explicit), sizing every buffer.
@@ -84,12 +97,14 @@ impl Implicit {
             x: vec![0.0; n],
             prev: vec![0.0; n],
             bc: vec![0.0; n],
+            ho: vec![0.0; n],
             extra: std::array::from_fn(|_| vec![0.0; n]),
             a,
             solver,
             assembled: None,
             last_iterations: 0,
             last_corrections: 0,
+            unsettled_steps: 0,
         })
     }
 
@@ -205,7 +220,6 @@ impl Implicit {
         let max_it = if corrections { scheme.max_corrections.max(1) } else { 1 };
         self.last_iterations = 0;
         self.last_corrections = 0;
-        let mut change = 0.0;
         for it in 0..max_it {
             copy_interior(&g, &self.rhs, &mut self.b);
             for (bv, c) in self.b.iter_mut().zip(&self.bc) {
@@ -236,11 +250,15 @@ impl Implicit {
                     self.rows_per_block,
                     p,
                 );
+                let w = if it >= 3 { RELAX } else { 1.0 };
                 for j in 0..g.ny {
                     let q = g.idx(0, j as isize);
-                    let row = &mut self.b[j * g.nx..(j + 1) * g.nx];
-                    for ((bv, h), l) in row.iter_mut().zip(&self.hi[q..q + g.nx]).zip(&self.lo[q..q + g.nx]) {
-                        *bv += h - l;
+                    let k0 = j * g.nx;
+                    let rows = self.b[k0..k0 + g.nx].iter_mut().zip(&mut self.ho[k0..k0 + g.nx]);
+                    for ((bv, ho), (h, l)) in rows.zip(self.hi[q..q + g.nx].iter().zip(&self.lo[q..q + g.nx])) {
+                        let term = if it == 0 { h - l } else { w * (h - l) + (1.0 - w) * *ho };
+                        *ho = term;
+                        *bv += term;
                     }
                 }
                 self.prev.copy_from_slice(&self.x);
@@ -259,18 +277,20 @@ impl Implicit {
                 dmax = dmax.max((x - p).abs());
                 xmax = xmax.max(x.abs());
             }
-            change = dmax / xmax.max(f64::MIN_POSITIVE);
+            let change = dmax / xmax.max(f64::MIN_POSITIVE);
             if change <= scheme.correction_tolerance {
                 break;
             }
             if it + 1 == max_it {
-                return Err(ImplicitFailure::Correction {
-                    iterations: max_it,
-                    change,
-                });
+                if change > STALL_LIMIT {
+                    return Err(ImplicitFailure::Correction {
+                        iterations: max_it,
+                        change,
+                    });
+                }
+                self.unsettled_steps += 1;
             }
         }
-        let _ = change;
         spread_interior(&g, &self.x, &mut state.c);
         // Side fluxes at the new level, with the implicit weight.
         let sums = kernel::side_sums(m, &state.c, if implicit_conv { f1 } else { 0.0 }, 1.0);

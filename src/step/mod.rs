@@ -127,8 +127,8 @@ impl Default for Scheme {
             theta: None,
             tolerance: 1e-10,
             max_iterations: 100,
-            correction_tolerance: 1e-8,
-            max_corrections: 30,
+            correction_tolerance: 1e-6,
+            max_corrections: 50,
         }
     }
 }
@@ -531,9 +531,22 @@ impl Simulation {
         }
     }
 
-    /// Warnings about this run's numerical choices at its largest step.
+    /// Warnings about this run's numerical choices at its largest step, and about steps whose
+    /// deferred correction stalled.
     pub fn warnings(&self) -> Vec<String> {
-        scheme_warnings(&self.model, &self.scheme, self.dt_max)
+        let mut w = scheme_warnings(&self.model, &self.scheme, self.dt_max);
+        if let Stepper::Implicit(imp) = &self.stepper {
+            if imp.unsettled_steps > 0 {
+                w.push(format!(
+                    "in {} step(s) the deferred correction of '{}' stalled above its tolerance {:.0e} (but changed the field by less than {:.0e} of its largest value); a smaller Courant number settles it",
+                    imp.unsettled_steps,
+                    self.scheme.limiter.name(),
+                    self.scheme.correction_tolerance,
+                    implicit::STALL_LIMIT
+                ));
+            }
+        }
+        w
     }
 
     /// Builds the divergence report: the worst cell and the likely cause.
