@@ -1,0 +1,96 @@
+//! `tinct bench`: throughput of the explicit step on the shared benchmark problem.
+
+use super::{bad_input, failed, parse_schemes, Failure};
+use std::path::PathBuf;
+use tinct::ops::limiter::Limiter;
+
+/// Arguments of `tinct bench`.
+#[derive(clap::Args)]
+pub struct BenchArgs {
+    /// Grid sizes (cells per side).
+    #[arg(long, value_delimiter = ',', default_value = "512,1024,2048")]
+    sizes: Vec<usize>,
+    /// Convection schemes; `all` for every one.
+    #[arg(long, value_delimiter = ',', default_value = "all")]
+    schemes: Vec<String>,
+    /// Repetitions per configuration (the median is reported).
+    #[arg(long, default_value_t = 7)]
+    reps: usize,
+    /// Seconds per repetition.
+    #[arg(long, default_value_t = 0.3)]
+    seconds: f64,
+    /// The peers' reference values (checked after 10 steps when present).
+    #[arg(long, default_value = "../shared/peers/explicit-step/results/reference_values.json")]
+    reference: PathBuf,
+    /// Threads (default: all cores).
+    #[arg(long)]
+    threads: Option<usize>,
+}
+
+/// Runs `tinct bench`.
+pub fn main(a: BenchArgs) -> Result<(), Failure> {
+    let BenchArgs {
+        sizes,
+        schemes,
+        reps,
+        seconds,
+        reference,
+        threads,
+    } = a;
+    let schemes = parse_schemes(&schemes)?;
+    if let Some(t) = threads {
+        rayon::ThreadPoolBuilder::new()
+            .num_threads(t)
+            .build_global()
+            .map_err(|e| bad_input(format!("--threads: {e}")))?;
+    }
+    let refs = std::fs::read_to_string(&reference).ok();
+    println!(
+        "explicit step, periodic vortex, K = h/10, one forward-Euler stage; {} thread(s)",
+        rayon::current_num_threads()
+    );
+    for &n in &sizes {
+        if n < 16 {
+            return Err(bad_input(format!("--sizes: {n} is too small (at least 16)")));
+        }
+        match &refs {
+            Some(json) => {
+                let (mut sim, setup) =
+                    tinct::bench::peer_simulation(n, Limiter::VanLeer).map_err(|e| bad_input(e.to_string()))?;
+                for _ in 0..10 {
+                    sim.step(setup.dt).map_err(|e| failed(e.to_string()))?;
+                }
+                let d = tinct::bench::peer_diagnostics(&sim);
+                match tinct::bench::compare_with_reference(json, n, "step10", &d) {
+                    Ok(e) if e <= 1e-12 => println!(
+                        "N = {n}: van_leer after 10 steps matches the reference values (largest difference {e:.1e})"
+                    ),
+                    Ok(e) => {
+                        return Err(failed(format!(
+                            "N = {n}: van_leer after 10 steps differs from the reference values by {e:.3e} (> 1e-12)"
+                        )))
+                    }
+                    Err(e) => println!("N = {n}: not checked ({e})"),
+                }
+            }
+            None => println!(
+                "N = {n}: reference values not found at {}; not checked",
+                reference.display()
+            ),
+        }
+    }
+    println!(
+        "{:<12} {:>6} {:>12} {:>12} {:>12} {:>7}",
+        "scheme", "N", "Mcell/s", "min", "max", "steps"
+    );
+    for &n in &sizes {
+        for &lim in &schemes {
+            let t = tinct::bench::measure(n, lim, reps, seconds).map_err(|e| bad_input(e.to_string()))?;
+            println!(
+                "{:<12} {:>6} {:>12.1} {:>12.1} {:>12.1} {:>7}",
+                t.scheme, t.n, t.median, t.min, t.max, t.steps
+            );
+        }
+    }
+    Ok(())
+}

@@ -1,0 +1,136 @@
+//! `tinct run`: runs a scenario, with a progress bar, and prints the result table.
+
+use super::{bad_input, failed, fmt_t, Failure};
+use std::path::PathBuf;
+
+/// Arguments of `tinct run`.
+#[derive(clap::Args)]
+pub struct RunArgs {
+    /// The scenario file (TOML).
+    scenario: PathBuf,
+    /// Output folder (default: the scenario's `output.dir`, else `out`); results go to
+    /// `<DIR>/<name>/`.
+    #[arg(long)]
+    out: Option<PathBuf>,
+    /// Override a scenario key, e.g. `--set scheme.convection=superbee` (repeatable).
+    #[arg(long = "set", value_name = "KEY=VALUE")]
+    sets: Vec<String>,
+    /// No progress bar or warnings on stderr.
+    #[arg(long)]
+    quiet: bool,
+}
+
+/// Runs `tinct run`.
+pub fn main(a: RunArgs) -> Result<(), Failure> {
+    let RunArgs {
+        scenario,
+        out,
+        sets,
+        quiet,
+    } = a;
+    let path = scenario.as_path();
+    let sets = &sets[..];
+    use indicatif::{ProgressBar, ProgressStyle};
+    use tinct::run::{execute, RunFailure};
+    let scn = tinct::scenario::load(path, sets).map_err(|e| bad_input(e.to_string()))?;
+    let base = out.unwrap_or_else(|| scn.output.dir.clone());
+    let bar = if quiet {
+        ProgressBar::hidden()
+    } else {
+        ProgressBar::new(1000)
+    };
+    bar.set_style(
+        ProgressStyle::with_template("{spinner} [{bar:32}] {msg}  elapsed {elapsed}, about {eta} to go")
+            .expect("valid template")
+            .progress_chars("=> "),
+    );
+    let mut last_draw = std::time::Instant::now();
+    let mut progress = |p: tinct::run::Progress| {
+        if last_draw.elapsed().as_millis() >= 100 || p.t >= p.end {
+            last_draw = std::time::Instant::now();
+            bar.set_position((p.t / p.end * 1000.0).round() as u64);
+            bar.set_message(format!(
+                "t = {} of {}, step {}, dt {:.3e} s",
+                fmt_t(p.t),
+                fmt_t(p.end),
+                p.step,
+                p.dt
+            ));
+        }
+    };
+    let mut on_start = |warnings: &[String]| {
+        if !quiet {
+            for w in warnings {
+                bar.suspend(|| eprintln!("tinct: warning: {w}"));
+            }
+        }
+    };
+    let result = execute(&scn, &base, &mut on_start, &mut progress);
+    bar.finish_and_clear();
+    match result {
+        Ok(outcome) => {
+            print_outcome(&outcome);
+            Ok(())
+        }
+        Err(RunFailure::BadInput(m)) => Err(bad_input(m)),
+        Err(RunFailure::Output(e)) => Err(failed(format!("writing results: {e}"))),
+        Err(RunFailure::Stopped { error, outcome }) => {
+            print_outcome(&outcome);
+            Err(failed(format!(
+                "{error}\nthe results up to that step are in {}",
+                outcome.dir.display()
+            )))
+        }
+    }
+}
+
+fn print_outcome(o: &tinct::run::RunOutcome) {
+    // A closed stdout (e.g. piped into `head`) is not an error of the run.
+    let _ = write_outcome(o, &mut std::io::stdout().lock());
+}
+
+fn write_outcome(o: &tinct::run::RunOutcome, out: &mut impl std::io::Write) -> std::io::Result<()> {
+    let s = &o.summary;
+    writeln!(
+        out,
+        "{} ({}): {} steps to t = {}, dt {:.3e} to {:.3e} s, {:.1} s wall ({:.1} M cell updates/s)",
+        s.scenario,
+        s.status,
+        s.steps,
+        fmt_t(s.simulated_time),
+        s.dt_min,
+        s.dt_max,
+        s.wall_seconds,
+        s.cell_updates_per_second / 1e6
+    )?;
+    writeln!(out, "  mass: start {:.6e}, end {:.6e}; added {:.4e}, in {:.4e}, out {:.4e}, decayed {:.4e}; largest budget residual {:.1e}", s.initial_mass, s.final_mass, s.added, s.inflow, s.outflow, s.decayed, s.max_abs_residual)?;
+    writeln!(out, "  concentration: min {:.4e}, max {:.4e}", s.min_ever, s.max_ever)?;
+    if !s.receptors.is_empty() {
+        writeln!(
+            out,
+            "  {:<20} {:>12} {:>12} {:>14} {:>14}",
+            "receptor", "peak", "peak at", "arrival", "above thr."
+        )?;
+        for r in &s.receptors {
+            let arr = r.arrival_time.map(fmt_t).unwrap_or_else(|| "-".into());
+            let above = r.time_above_threshold.map(fmt_t).unwrap_or_else(|| "-".into());
+            writeln!(
+                out,
+                "  {:<20} {:>12.4e} {:>12} {:>14} {:>14}",
+                r.name,
+                r.peak,
+                fmt_t(r.peak_time),
+                arr,
+                above
+            )?;
+        }
+    }
+    writeln!(
+        out,
+        "  results: {} (summary.json, budget.csv, receptors.csv, fields.nc, {} frames)",
+        o.dir.display(),
+        s.frames
+    )?;
+    writeln!(out, "  caution: {}", s.caution)?;
+    Ok(())
+}
