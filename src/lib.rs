@@ -30,6 +30,7 @@
 
 pub mod bench;
 pub mod budget;
+pub mod diagnostics;
 pub mod error;
 pub mod field;
 pub mod flow;

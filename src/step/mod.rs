@@ -113,6 +113,9 @@ pub struct Scheme {
     pub correction_tolerance: f64,
     /// Cap on deferred-correction iterations per step.
     pub max_corrections: usize,
+    /// Accept a fixed `dt` above the explicit stability bound (`--force`: for demonstrating
+    /// instability, never for results).
+    pub allow_unstable: bool,
 }
 
 impl Default for Scheme {
@@ -129,6 +132,7 @@ impl Default for Scheme {
             max_iterations: 100,
             correction_tolerance: 1e-6,
             max_corrections: 50,
+            allow_unstable: false,
         }
     }
 }
@@ -222,7 +226,7 @@ pub fn max_step(model: &Model, scheme: &Scheme) -> Result<f64, ModelError> {
             TimeScheme::Imex => lim.convection,
             TimeScheme::Implicit | TimeScheme::CrankNicolson => f64::INFINITY,
         };
-        if dt > bound * (1.0 + 1e-12) {
+        if dt > bound * (1.0 + 1e-12) && !scheme.allow_unstable {
             let reason = if lim.convection <= lim.diffusion || scheme.time == TimeScheme::Imex {
                 format!(
                     "sum of Courant numbers {:.3} > 1 with explicit convection",
