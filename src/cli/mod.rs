@@ -34,7 +34,7 @@ pub fn failed(message: impl Into<String>) -> Failure {
 /// Parses a list of convection scheme names; `all` means every one.
 pub fn parse_schemes(names: &[String]) -> Result<Vec<Limiter>, Failure> {
     if names.iter().any(|n| n == "all") {
-        return Ok(Limiter::ALL.to_vec());
+        return Ok(Limiter::EVERY.to_vec());
     }
     names
         .iter()

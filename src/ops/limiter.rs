@@ -33,10 +33,17 @@ pub enum Limiter {
     Superbee,
     /// Koren (1993), the limited kappa = 1/3 scheme: psi = max(0, min(2r, (2 + r)/3, 2)).
     Koren,
+    /// Hybrid, Spalding (1972): switched by the face cell Peclet number P = |u| h / K; central
+    /// for |P| < 2, upwind with the diffusion dropped above (A(P) = max(0, 1 - |P|/2) in
+    /// Patankar's coefficient form).
+    Hybrid,
+    /// Power law, Patankar (1980): A(P) = max(0, (1 - 0.1 |P|)^5), a close fit to the exact
+    /// exponential scheme of the 1D steady face problem.
+    PowerLaw,
 }
 
 impl Limiter {
-    /// Every limiter, in the order of DESIGN §2.
+    /// Every scheme in Sweby's flux-limiter form (psi of r), in the order of DESIGN §2.
     pub const ALL: [Limiter; 9] = [
         Limiter::Upwind,
         Limiter::Central,
@@ -48,6 +55,39 @@ impl Limiter {
         Limiter::Superbee,
         Limiter::Koren,
     ];
+
+    /// The schemes switched by the local cell Peclet number (coefficient form).
+    pub const PECLET_SWITCHED: [Limiter; 2] = [Limiter::Hybrid, Limiter::PowerLaw];
+
+    /// Every convection scheme: the limiters, then the Peclet-switched schemes.
+    pub const EVERY: [Limiter; 11] = [
+        Limiter::Upwind,
+        Limiter::Central,
+        Limiter::Quick,
+        Limiter::Minmod,
+        Limiter::VanLeer,
+        Limiter::VanAlbada,
+        Limiter::Mc,
+        Limiter::Superbee,
+        Limiter::Koren,
+        Limiter::Hybrid,
+        Limiter::PowerLaw,
+    ];
+
+    /// Whether the scheme is switched by the cell Peclet number instead of a limiter of r.
+    pub fn is_peclet_switched(self) -> bool {
+        matches!(self, Limiter::Hybrid | Limiter::PowerLaw)
+    }
+
+    /// Patankar's A(|P|) of a Peclet-switched scheme (the weight of the diffusive conductance
+    /// in the neighbour coefficient); 1 for the other schemes.
+    pub fn peclet_weight(self, pe: f64) -> f64 {
+        match self {
+            Limiter::Hybrid => Hybrid::weight(pe),
+            Limiter::PowerLaw => PowerLaw::weight(pe),
+            _ => 1.0,
+        }
+    }
 
     /// The scenario-file name.
     pub fn name(self) -> &'static str {
@@ -61,12 +101,14 @@ impl Limiter {
             Limiter::Mc => "mc",
             Limiter::Superbee => "superbee",
             Limiter::Koren => "koren",
+            Limiter::Hybrid => "hybrid",
+            Limiter::PowerLaw => "power_law",
         }
     }
 
     /// The allowed names, comma separated, for error messages.
     pub fn allowed() -> String {
-        Self::ALL.iter().map(|l| l.name()).collect::<Vec<_>>().join(", ")
+        Self::EVERY.iter().map(|l| l.name()).collect::<Vec<_>>().join(", ")
     }
 
     /// Whether psi lies in Sweby's TVD region (bounded results); false for central and QUICK.
@@ -74,7 +116,9 @@ impl Limiter {
         !matches!(self, Limiter::Central | Limiter::Quick)
     }
 
-    /// psi(r), for tests and diagnostics (the time loop uses the monomorphised kernels).
+    /// psi(r), for tests and diagnostics (the time loop uses the monomorphised kernels). The
+    /// Peclet-switched schemes have no psi(r); their value here is that of their high-Peclet
+    /// limit, upwind (0).
     pub fn psi(self, r: f64) -> f64 {
         match self {
             Limiter::Upwind => Upwind::psi(r),
@@ -86,6 +130,7 @@ impl Limiter {
             Limiter::Mc => Mc::psi(r),
             Limiter::Superbee => Superbee::psi(r),
             Limiter::Koren => Koren::psi(r),
+            Limiter::Hybrid | Limiter::PowerLaw => 0.0,
         }
     }
 }
@@ -104,7 +149,7 @@ pub struct UnknownLimiter(pub String);
 impl FromStr for Limiter {
     type Err = UnknownLimiter;
     fn from_str(s: &str) -> Result<Self, Self::Err> {
-        Self::ALL
+        Self::EVERY
             .iter()
             .copied()
             .find(|l| l.name() == s)
@@ -113,10 +158,21 @@ impl FromStr for Limiter {
 }
 
 /// A limiter specialised at compile time: the half-increment `0.5 psi(r) b` from the upwind
-/// difference `a = c_C - c_U` and the downwind difference `b = c_D - c_C`.
+/// difference `a = c_C - c_U` and the downwind difference `b = c_D - c_C`; or, for the
+/// Peclet-switched schemes (`PECLET = true`), Patankar's weight A(|P|).
 pub trait LimiterKernel: Send + Sync {
+    /// Whether the face flux comes from Patankar's coefficient form with [`Self::weight`]
+    /// instead of a limited face value.
+    const PECLET: bool = false;
+
     /// psi(r).
     fn psi(r: f64) -> f64;
+
+    /// A(|P|) for the Peclet-switched schemes (1, i.e. central diffusion, for the others).
+    #[inline(always)]
+    fn weight(_pe: f64) -> f64 {
+        1.0
+    }
 
     /// `0.5 psi(r) b` with `r = a / (b + copysign(R_GUARD, b))`.
     #[inline(always)]
@@ -144,6 +200,38 @@ pub struct Mc;
 pub struct Superbee;
 /// Kernel type of [`Limiter::Koren`].
 pub struct Koren;
+/// Kernel type of [`Limiter::Hybrid`].
+pub struct Hybrid;
+/// Kernel type of [`Limiter::PowerLaw`].
+pub struct PowerLaw;
+
+impl LimiterKernel for Hybrid {
+    const PECLET: bool = true;
+    #[inline(always)]
+    fn psi(_r: f64) -> f64 {
+        0.0
+    }
+    /// Spalding (1972) in Patankar's (1980) form: max(0, 1 - |P|/2) (NaN maps to 0).
+    #[inline(always)]
+    fn weight(pe: f64) -> f64 {
+        (1.0 - 0.5 * pe.abs()).max(0.0)
+    }
+}
+
+impl LimiterKernel for PowerLaw {
+    const PECLET: bool = true;
+    #[inline(always)]
+    fn psi(_r: f64) -> f64 {
+        0.0
+    }
+    /// Patankar (1980), eq. 5.43: max(0, (1 - 0.1 |P|)^5) (NaN maps to 0).
+    #[inline(always)]
+    fn weight(pe: f64) -> f64 {
+        let t = (1.0 - 0.1 * pe.abs()).max(0.0);
+        let t2 = t * t;
+        t2 * t2 * t
+    }
+}
 
 impl LimiterKernel for Upwind {
     #[inline(always)]
@@ -278,6 +366,14 @@ macro_rules! with_limiter {
                 type $k = lk::Koren;
                 $body
             }
+            lk::Limiter::Hybrid => {
+                type $k = lk::Hybrid;
+                $body
+            }
+            lk::Limiter::PowerLaw => {
+                type $k = lk::PowerLaw;
+                $body
+            }
         }
     }};
 }
@@ -373,12 +469,36 @@ mod tests {
         }
     }
 
+    /// Patankar (1980), Numerical Heat Transfer and Fluid Flow, Table 5.2: A(|P|) of the power
+    /// law is max(0, (1 - 0.1|P|)^5); of the hybrid scheme max(0, 1 - 0.5|P|) (Spalding 1972).
+    /// Values worked by hand from the formulas: (1 - 0.1)^5 = 0.59049, (1 - 0.5)^5 = 0.03125.
+    #[test]
+    fn peclet_weights_follow_patankar() {
+        let pl = [(0.0, 1.0), (1.0, 0.59049), (5.0, 0.03125), (10.0, 0.0), (20.0, 0.0)];
+        for (pe, want) in pl {
+            assert!(close(Limiter::PowerLaw.peclet_weight(pe), want), "power law A({pe})");
+            assert!(close(Limiter::PowerLaw.peclet_weight(-pe), want));
+        }
+        // Hybrid: central weight 1 - |P|/2 below |P| = 2, zero (upwind, no diffusion) above.
+        assert!(close(Limiter::Hybrid.peclet_weight(1.0), 0.5));
+        assert!(Limiter::Hybrid.peclet_weight(1.99) > 0.0);
+        assert_eq!(Limiter::Hybrid.peclet_weight(2.0), 0.0);
+        assert_eq!(Limiter::Hybrid.peclet_weight(2.01), 0.0);
+        assert_eq!(Limiter::Hybrid.peclet_weight(f64::INFINITY), 0.0);
+        assert_eq!(Limiter::PowerLaw.peclet_weight(f64::NAN), 0.0);
+        assert_eq!(Limiter::VanLeer.peclet_weight(5.0), 1.0);
+        assert!(Limiter::Hybrid.is_peclet_switched() && !Limiter::Superbee.is_peclet_switched());
+    }
+
     #[test]
     fn names_round_trip_and_unknown_names_list_the_allowed() {
-        for lim in Limiter::ALL {
+        for lim in Limiter::EVERY {
             assert_eq!(lim.name().parse::<Limiter>().unwrap(), lim);
         }
         let e = "vanleer".parse::<Limiter>().unwrap_err().to_string();
-        assert!(e.contains("van_leer") && e.contains("superbee"), "{e}");
+        assert!(
+            e.contains("van_leer") && e.contains("superbee") && e.contains("power_law"),
+            "{e}"
+        );
     }
 }

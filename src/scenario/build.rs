@@ -920,7 +920,7 @@ fn scheme_section(root: Section, p: &mut Problems) -> Option<Scheme> {
         match name.parse::<Limiter>() {
             Ok(l) => scheme.limiter = l,
             Err(e) => {
-                let names: Vec<&str> = Limiter::ALL.iter().map(|l| l.name()).collect();
+                let names: Vec<&str> = Limiter::EVERY.iter().map(|l| l.name()).collect();
                 p.add("scheme.convection", format!("{e}{}", suggestion(name, &names)));
                 ok = false;
             }

@@ -31,6 +31,7 @@ pub(crate) enum ImplicitFailure {
 #[derive(Debug)]
 pub(crate) struct Implicit {
     time: TimeScheme,
+    limiter: Limiter,
     theta: f64,
     blocks: Vec<Block>,
     rows_per_block: usize,
@@ -85,6 +86,7 @@ impl Implicit {
         let padded = || vec![f64::NAN; m.grid.padded_len()];
         Ok(Self {
             time: scheme.time,
+            limiter: scheme.limiter,
             theta,
             blocks,
             rows_per_block,
@@ -122,6 +124,13 @@ impl Implicit {
         let [d, aw, ae, as_, an] = &mut self.extra;
         self.bc.iter_mut().for_each(|v| *v = 0.0);
         let b = &m.boundaries;
+        // Peclet-switched schemes carry their exact coefficient form in the matrix.
+        let scheme = if self.time.implicit_convection() && self.limiter.is_peclet_switched() {
+            Some(self.limiter)
+        } else {
+            None
+        };
+        let (dx_cond, dy_cond) = (m.kx / g.dx, m.ky / g.dy);
         for j in 0..ny {
             for i in 0..nx {
                 let k = j * nx + i;
@@ -131,13 +140,25 @@ impl Implicit {
                 let vs = conv_factor * m.flow.v[p];
                 let vn = conv_factor * m.flow.v[p + g.stride()];
                 let (cx, cy) = (td / g.dx, td / g.dy);
+                let (fx, fy) = (
+                    Face {
+                        c: cx,
+                        d: dx_cond,
+                        scheme,
+                    },
+                    Face {
+                        c: cy,
+                        d: dy_cond,
+                        scheme,
+                    },
+                );
                 let mut diag = 0.0;
                 let mut bc = 0.0;
                 // West face: flux into the cell is uw * (upwind value).
-                face_terms(i == 0, b.west, uw, cx, true, &mut diag, &mut aw[k], &mut bc);
-                face_terms(i + 1 == nx, b.east, ue, cx, false, &mut diag, &mut ae[k], &mut bc);
-                face_terms(j == 0, b.south, vs, cy, true, &mut diag, &mut as_[k], &mut bc);
-                face_terms(j + 1 == ny, b.north, vn, cy, false, &mut diag, &mut an[k], &mut bc);
+                fx.terms(i == 0, b.west, uw, true, &mut diag, &mut aw[k], &mut bc);
+                fx.terms(i + 1 == nx, b.east, ue, false, &mut diag, &mut ae[k], &mut bc);
+                fy.terms(j == 0, b.south, vs, true, &mut diag, &mut as_[k], &mut bc);
+                fy.terms(j + 1 == ny, b.north, vn, false, &mut diag, &mut an[k], &mut bc);
                 if !m.mask.is_wet(i, j) {
                     diag = 0.0;
                     bc = 0.0;
@@ -216,7 +237,7 @@ impl Implicit {
         }
         self.assemble(m, dt, f1).map_err(ImplicitFailure::Solver)?;
         copy_interior(&g, &state.c, &mut self.x);
-        let corrections = implicit_conv && scheme.limiter != Limiter::Upwind;
+        let corrections = implicit_conv && scheme.limiter != Limiter::Upwind && !scheme.limiter.is_peclet_switched();
         let max_it = if corrections { scheme.max_corrections.max(1) } else { 1 };
         self.last_iterations = 0;
         self.last_corrections = 0;
@@ -326,34 +347,50 @@ fn stage_params(dt: f64, factor: f64, diffusion: f64, limit: f64) -> StageParams
     }
 }
 
-/// Matrix and right-hand-side terms of one face of a cell for upwind convection:
-/// `w` the face velocity (positive along the axis), `c = theta dt / h`, `low` for the
-/// west/south face. On a non-periodic side the coupling is dropped and the side value goes to
-/// the right-hand side (open inflow, fixed), or the outflow stays on the diagonal (open).
-#[allow(clippy::too_many_arguments)]
-fn face_terms(on_side: bool, kind: SideKind, w: f64, c: f64, low: bool, diag: &mut f64, off: &mut f64, bc: &mut f64) {
-    // Outflow through this face leaves with the cell value; inflow comes with the neighbour's.
-    let (out_v, in_v) = if low {
-        ((-w).max(0.0), w.max(0.0))
-    } else {
-        (w.max(0.0), (-w).max(0.0))
-    };
-    if !on_side || kind == SideKind::Periodic {
-        *diag += c * out_v;
-        *off = c * in_v;
-        return;
-    }
-    *off = 0.0;
-    match kind {
-        SideKind::Wall | SideKind::Periodic => {}
-        SideKind::Open { value } => {
-            *diag += c * out_v;
-            *bc += c * in_v * value;
+/// One face direction of the implicit matrix: `c = theta dt / h`, `d = K / h` the physical
+/// conductance, and the Peclet-switched scheme whose coefficient form replaces upwind, if any.
+struct Face {
+    c: f64,
+    d: f64,
+    scheme: Option<Limiter>,
+}
+
+impl Face {
+    /// Matrix and right-hand-side terms of one face of a cell: `w` the face velocity (positive
+    /// along the axis), `low` for the west/south face. Upwind convection, plus for the
+    /// Peclet-switched schemes the change `d (A(|P|) - 1)` of the diffusive coupling
+    /// (Patankar 1980: `a_nb = D A(|P|) + max(-+F, 0)`; the central `D` is in the diffusion
+    /// matrix already). On a non-periodic side the coupling is dropped and the side value goes
+    /// to the right-hand side (open inflow, fixed), or the outflow stays on the diagonal (open).
+    #[allow(clippy::too_many_arguments)]
+    fn terms(&self, on_side: bool, kind: SideKind, w: f64, low: bool, diag: &mut f64, off: &mut f64, bc: &mut f64) {
+        let c = self.c;
+        // Outflow through this face leaves with the cell value; inflow comes with the neighbour's.
+        let (out_v, in_v) = if low {
+            ((-w).max(0.0), w.max(0.0))
+        } else {
+            (w.max(0.0), (-w).max(0.0))
+        };
+        if !on_side || kind == SideKind::Periodic {
+            let switch = self
+                .scheme
+                .map_or(0.0, |l| self.d * (l.peclet_weight(w / self.d) - 1.0));
+            *diag += c * (out_v + switch);
+            *off = c * (in_v + switch);
+            return;
         }
-        SideKind::Fixed { value } => {
-            // Flux w * value through the face whatever its direction: in for low sides when
-            // w > 0, out for high sides when w > 0.
-            *bc += if low { c * w * value } else { -c * w * value };
+        *off = 0.0;
+        match kind {
+            SideKind::Wall | SideKind::Periodic => {}
+            SideKind::Open { value } => {
+                *diag += c * out_v;
+                *bc += c * in_v * value;
+            }
+            SideKind::Fixed { value } => {
+                // Flux w * value through the face whatever its direction: in for low sides when
+                // w > 0, out for high sides when w > 0.
+                *bc += if low { c * w * value } else { -c * w * value };
+            }
         }
     }
 }

@@ -12,7 +12,6 @@ use crate::field::Neumaier;
 use crate::model::Model;
 use crate::ops::boundary::{side_flux, Side, SideKind};
 use crate::ops::convection;
-use crate::ops::diffusion;
 use crate::ops::limiter::LimiterKernel;
 use rayon::prelude::*;
 
@@ -147,16 +146,14 @@ impl<'a> YRows<'a> {
 
     /// Total (convective + diffusive) flux through face i.
     #[inline(always)]
-    fn flux<K: LimiterKernel, const MASKED: bool>(&self, i: usize, factor: f64, coef: f64) -> f64 {
+    fn flux<K: LimiterKernel, const MASKED: bool>(&self, i: usize, factor: f64, coef: f64, s: f64) -> f64 {
         let w = factor * self.v[i];
         if MASKED {
             let uu = convection::pick(w >= 0.0, wet_f(self.wll[i]), wet_f(self.wrr[i]));
             let d = coef * wet_f(self.wl[i]) * wet_f(self.wr[i]);
-            convection::flux::<K>(w, self.ll[i], self.l[i], self.r[i], self.rr[i], uu)
-                + diffusion::flux(d, self.l[i], self.r[i])
+            convection::face_flux::<K>(w, self.ll[i], self.l[i], self.r[i], self.rr[i], uu, d, s)
         } else {
-            convection::flux::<K>(w, self.ll[i], self.l[i], self.r[i], self.rr[i], 1.0)
-                + diffusion::flux(coef, self.l[i], self.r[i])
+            convection::face_flux::<K>(w, self.ll[i], self.l[i], self.r[i], self.rr[i], 1.0, coef, s)
         }
     }
 }
@@ -169,13 +166,14 @@ fn y_faces<K: LimiterKernel, const MASKED: bool>(
     jf: usize,
     factor: f64,
     coef: f64,
+    s: f64,
     f: &mut [f64],
 ) {
     let nx = m.grid.nx;
     let y = YRows::new(m, src, jf).cut(nx);
     let f = &mut f[..nx];
     for (i, fi) in f.iter_mut().enumerate() {
-        *fi = y.flux::<K, MASKED>(i, factor, coef);
+        *fi = y.flux::<K, MASKED>(i, factor, coef, s);
     }
 }
 
@@ -187,6 +185,7 @@ fn x_faces<K: LimiterKernel, const MASKED: bool>(
     j: usize,
     factor: f64,
     coef: f64,
+    sd: f64,
     f: &mut [f64],
 ) {
     let g = &m.grid;
@@ -203,12 +202,12 @@ fn x_faces<K: LimiterKernel, const MASKED: bool>(
             let w = factor * u[i];
             let uu = convection::pick(w >= 0.0, wet_f(wll[i]), wet_f(wrr[i]));
             let d = coef * wet_f(wl[i]) * wet_f(wr[i]);
-            f[i] = convection::flux::<K>(w, ll[i], l[i], r[i], rr[i], uu) + diffusion::flux(d, l[i], r[i]);
+            f[i] = convection::face_flux::<K>(w, ll[i], l[i], r[i], rr[i], uu, d, sd);
         }
     } else {
         for i in 0..n {
             let w = factor * u[i];
-            f[i] = convection::flux::<K>(w, ll[i], l[i], r[i], rr[i], 1.0) + diffusion::flux(coef, l[i], r[i]);
+            f[i] = convection::face_flux::<K>(w, ll[i], l[i], r[i], rr[i], 1.0, coef, sd);
         }
     }
 }
@@ -287,13 +286,16 @@ fn block<K: LimiterKernel, const MASKED: bool, const BASE: bool>(
     let b = &m.boundaries;
     let dtdx = p.dt / g.dx;
     let dtdy = p.dt / g.dy;
-    let (coef_x, coef_y) = (p.diffusion * m.kx / g.dx, p.diffusion * m.ky / g.dy);
-    let (cx2, cy2) = (2.0 * coef_x, 2.0 * coef_y);
+    // Physical conductances (the Peclet-switched schemes need them even without diffusion);
+    // `p.diffusion` scales the diffusive part.
+    let (coef_x, coef_y) = (m.kx / g.dx, m.ky / g.dy);
+    let sd = p.diffusion;
+    let (cx2, cy2) = (2.0 * sd * coef_x, 2.0 * sd * coef_y);
     let limit = p.limit;
     let Block { fx, fys, fyn, sums } = blk;
     *sums = BlockSums::default();
     // South faces of the block's first row.
-    y_faces::<K, MASKED>(m, src, j0, p.factor, coef_y, fys);
+    y_faces::<K, MASKED>(m, src, j0, p.factor, coef_y, sd, fys);
     if j0 == 0 {
         let q = g.idx(0, 0);
         side_row(
@@ -311,7 +313,7 @@ fn block<K: LimiterKernel, const MASKED: bool, const BASE: bool>(
     for r in 0..rows {
         let j = j0 + r;
         let q = g.idx(0, j as isize);
-        x_faces::<K, MASKED>(m, src, j, p.factor, coef_x, fx);
+        x_faces::<K, MASKED>(m, src, j, p.factor, coef_x, sd, fx);
         if let Some(f) = side_face(b.west, Side::West, p.factor * m.flow.u[q], src[q], m.wet[q], cx2, sums) {
             fx[0] = f;
         }
@@ -341,7 +343,7 @@ fn block<K: LimiterKernel, const MASKED: bool, const BASE: bool>(
         };
         if j + 1 == ny && b.north != SideKind::Periodic {
             // North side row: side fluxes first, then the update.
-            y_faces::<K, MASKED>(m, src, j + 1, p.factor, coef_y, fyn);
+            y_faces::<K, MASKED>(m, src, j + 1, p.factor, coef_y, sd, fyn);
             let qn = g.idx(0, ny as isize);
             side_row(
                 b.north,
@@ -368,7 +370,7 @@ fn block<K: LimiterKernel, const MASKED: bool, const BASE: bool>(
             let y = YRows::new(m, src, j + 1).cut(nx);
             let mut bad = false;
             for i in 0..nx {
-                let fn_i = y.flux::<K, MASKED>(i, p.factor, coef_y);
+                let fn_i = y.flux::<K, MASKED>(i, p.factor, coef_y, sd);
                 let v = update(i, fs[i], fn_i);
                 bad |= !(v.abs() <= limit);
                 o[i] = v;
