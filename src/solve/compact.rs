@@ -45,11 +45,16 @@ pub(crate) struct Consts {
     pub gy: f64,
 }
 
-/// A compact operator: flags per cell plus [`Consts`].
+/// Marks a row whose interior cells (all but the first and last) do not share one flag byte.
+pub(crate) const MIXED: u8 = 0xFF;
+
+/// A compact operator: flags per cell plus [`Consts`], and per row the flag byte shared by
+/// all its interior cells ([`MIXED`] if none), so uniform rows run a select-free loop.
 #[derive(Debug, Clone, PartialEq)]
 pub(crate) struct Compact {
     pub k: Consts,
     pub flags: Vec<u8>,
+    pub rows: Vec<u8>,
 }
 
 impl Consts {
@@ -68,6 +73,16 @@ impl Consts {
         } else {
             d
         }
+    }
+
+    /// `(diag, w, e, s, n)` of a cell with flags `f` (the same values the selects give).
+    #[inline(always)]
+    pub fn coefs(&self, f: u8) -> (f64, f64, f64, f64, f64) {
+        let w = if f & W != 0 { self.cx } else { 0.0 };
+        let e = if f & E != 0 { self.cx } else { 0.0 };
+        let s = if f & S != 0 { self.cy } else { 0.0 };
+        let n = if f & N != 0 { self.cy } else { 0.0 };
+        (self.diag(f), w, e, s, n)
     }
 
     /// `w x_W + e x_E + s x_S + n x_N` for a cell with flags `f`.
@@ -147,14 +162,25 @@ impl Compact {
                 flags[c] = f;
             }
         }
-        Some(Self { k, flags })
+        let rows = flags
+            .chunks_exact(nx)
+            .map(|r| {
+                let inner = &r[1..nx - 1];
+                if inner.iter().all(|&f| f == inner[0]) {
+                    inner[0]
+                } else {
+                    MIXED
+                }
+            })
+            .collect();
+        Some(Self { k, flags, rows })
     }
 }
 
-/// `y = A x` on one row (`xs`, `x`, `xn`: south, own and north rows; neighbours across the row
+/// `y = A x` on one row (`u`: the row's shared interior flags or [`MIXED`]; `xs`, `x`, `xn`: south, own and north rows; neighbours across the row
 /// ends wrap, their couplings are zero unless periodic). Returns `x . y` on the row.
 #[inline(always)]
-pub(crate) fn apply_row(k: &Consts, f: &[u8], xs: &[f64], x: &[f64], xn: &[f64], y: &mut [f64]) -> f64 {
+pub(crate) fn apply_row(k: &Consts, u: u8, f: &[u8], xs: &[f64], x: &[f64], xn: &[f64], y: &mut [f64]) -> f64 {
     let n = x.len();
     let (f, xs, xn, y) = (&f[..n], &xs[..n], &xn[..n], &mut y[..n]);
     if n < 3 {
@@ -179,17 +205,25 @@ pub(crate) fn apply_row(k: &Consts, f: &[u8], xs: &[f64], x: &[f64], xn: &[f64],
             &xn[1..=m],
             &mut y[1..=m],
         );
-        for i in 0..m {
-            y[i] = k.diag(f[i]) * xc[i] - k.nb(f[i], xw[i], xe[i], xs[i], xn[i]);
+        if u != MIXED {
+            let (d, cw, ce, cs, cn) = k.coefs(u);
+            for i in 0..m {
+                y[i] = d * xc[i] - (cw * xw[i] + ce * xe[i] + cs * xs[i] + cn * xn[i]);
+            }
+        } else {
+            for i in 0..m {
+                y[i] = k.diag(f[i]) * xc[i] - k.nb(f[i], xw[i], xe[i], xs[i], xn[i]);
+            }
         }
     }
     y[l] = k.diag(f[l]) * x[l] - k.nb(f[l], x[l - 1], x[0], xs[l], xn[l]);
     dot_lanes(x, y)
 }
 
-/// `r = b - A x` on one row.
+/// `r = b - A x` on one row (`u`: the row's shared interior flags or [`MIXED`]).
+#[allow(clippy::too_many_arguments)]
 #[inline(always)]
-pub(crate) fn residual_row(k: &Consts, f: &[u8], xs: &[f64], x: &[f64], xn: &[f64], b: &[f64], r: &mut [f64]) {
+pub(crate) fn residual_row(k: &Consts, u: u8, f: &[u8], xs: &[f64], x: &[f64], xn: &[f64], b: &[f64], r: &mut [f64]) {
     let n = x.len();
     let (f, xs, xn, b, r) = (&f[..n], &xs[..n], &xn[..n], &b[..n], &mut r[..n]);
     let l = n - 1;
@@ -212,8 +246,15 @@ pub(crate) fn residual_row(k: &Consts, f: &[u8], xs: &[f64], x: &[f64], xn: &[f6
             &b[1..=m],
             &mut r[1..=m],
         );
-        for i in 0..m {
-            r[i] = b[i] - (k.diag(f[i]) * xc[i] - k.nb(f[i], xw[i], xe[i], xs[i], xn[i]));
+        if u != MIXED {
+            let (d, cw, ce, cs, cn) = k.coefs(u);
+            for i in 0..m {
+                r[i] = b[i] - (d * xc[i] - (cw * xw[i] + ce * xe[i] + cs * xs[i] + cn * xn[i]));
+            }
+        } else {
+            for i in 0..m {
+                r[i] = b[i] - (k.diag(f[i]) * xc[i] - k.nb(f[i], xw[i], xe[i], xs[i], xn[i]));
+            }
         }
     }
     r[l] = b[l] - (k.diag(f[l]) * x[l] - k.nb(f[l], x[l - 1], x[0], xs[l], xn[l]));
@@ -269,6 +310,7 @@ pub(crate) fn residual_row_sq(k: &Consts, f: &[u8], xs: &[f64], x: &[f64], xn: &
 #[inline(always)]
 pub(crate) fn relax_row(
     k: &Consts,
+    u: u8,
     f: &[u8],
     inv: &[f64],
     b: &[f64],
@@ -298,9 +340,17 @@ pub(crate) fn relax_row(
         );
         // Interior cell i + 1 is relaxed when (i + 1) % 2 == start.
         let par = 1 - start;
-        for i in 0..m {
-            let v = (b[i] + k.nb(f[i], xw[i], xe[i], xs[i], xn[i])) * inv[i];
-            out[i] = if i & 1 == par { v } else { xc[i] };
+        if u != MIXED {
+            let (_, cw, ce, cs, cn) = k.coefs(u);
+            for i in 0..m {
+                let v = (b[i] + (cw * xw[i] + ce * xe[i] + cs * xs[i] + cn * xn[i])) * inv[i];
+                out[i] = if i & 1 == par { v } else { xc[i] };
+            }
+        } else {
+            for i in 0..m {
+                let v = (b[i] + k.nb(f[i], xw[i], xe[i], xs[i], xn[i])) * inv[i];
+                out[i] = if i & 1 == par { v } else { xc[i] };
+            }
         }
     }
     out[l] = if l % 2 == start { upd(l, x[l - 1], x[0]) } else { x[l] };

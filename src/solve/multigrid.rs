@@ -761,6 +761,7 @@ fn slot(t: isize) -> usize {
 /// The data of a fused sweep over one level.
 struct Fused<'a> {
     k: &'a Consts,
+    rows: &'a [u8],
     flags: &'a [u8],
     inv: &'a [f64],
     b: &'a [f64],
@@ -792,6 +793,7 @@ impl Fused<'_> {
                 let c = j * nx..(j + 1) * nx;
                 compact::relax_row(
                     self.k,
+                    self.rows[j],
                     &self.flags[c.clone()],
                     &self.inv[c.clone()],
                     &self.b[c],
@@ -837,6 +839,7 @@ impl Level {
         let py = comp_periodic_y(comp, nx, ny);
         let f = Fused {
             k: &comp.k,
+            rows: &comp.rows,
             flags: &comp.flags,
             inv,
             b,
@@ -872,6 +875,7 @@ impl Level {
                     let c = j * nx..(j + 1) * nx;
                     compact::residual_row(
                         f.k,
+                        f.rows[j],
                         &f.flags[c.clone()],
                         ring_row(rb, slot(v - 1), nx),
                         ring_row(rb, slot(v), nx),
@@ -921,6 +925,7 @@ impl Level {
         let py = comp_periodic_y(comp, nx, ny);
         let f = Fused {
             k: &comp.k,
+            rows: &comp.rows,
             flags: &comp.flags,
             inv,
             b,

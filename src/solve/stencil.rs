@@ -514,6 +514,7 @@ impl Stencil5 {
                     let (js, jn) = self.nb_rows(j);
                     dot += compact::apply_row(
                         &c.k,
+                        c.rows[j],
                         &c.flags[j * nx..(j + 1) * nx],
                         &x[js * nx..(js + 1) * nx],
                         &x[j * nx..(j + 1) * nx],
@@ -590,6 +591,7 @@ impl Stencil5 {
                     let (js, jn) = self.nb_rows(j);
                     compact::residual_row(
                         &c.k,
+                        c.rows[j],
                         &c.flags[j * nx..(j + 1) * nx],
                         &x[js * nx..(js + 1) * nx],
                         &x[j * nx..(j + 1) * nx],
