@@ -23,6 +23,15 @@
 //!   equal pre- and post-sweeps gives a symmetric V-cycle. With an odd periodic count the
 //!   colouring breaks across the wrap, so the last row/column is relaxed in a sequential
 //!   Gauss–Seidel pass (forward before, backward after, which keeps the symmetry).
+//! * **Matrix-free fused sweeps:** on levels whose operator has constant couplings (the
+//!   diffusion operator with uniform coefficients, and its all-water coarse operators; see
+//!   `compact.rs`), one pre- and one post-sweep, 2x2 coarsening and no sequential row or
+//!   column, the pre-smoothing from zero, residual and restriction run as one pass over the
+//!   right-hand side, and the prolongation and post-smoothing as one pass writing the result,
+//!   row by row through small ring buffers (each row block recomputes its few halo rows). They
+//!   compute the same V-cycle as the stored-coefficient passes, to round-off; on the finest
+//!   level the second pass also returns `r . z` for conjugate gradients. Other levels use the
+//!   stored coefficients.
 //! * **Coarsest level:** dense LU with partial pivoting (at most `coarse_max` cells); if it is
 //!   singular, many symmetric Gauss–Seidel sweeps instead.
 
