@@ -69,3 +69,30 @@ where
         .for_each(|(b, p)| *p = f(b * rpb, ((b + 1) * rpb).min(ny)));
     partial[..nb].iter().sum()
 }
+
+/// Lanes of the partial sums in [`dot_lanes`]: one AVX-512 register of `f64`.
+pub(crate) const LANES: usize = 8;
+
+/// `a . b` with `LANES` interleaved partial sums (so the loop vectorises without reordering
+/// by the compiler), added in a fixed order: deterministic for given inputs.
+#[inline(always)]
+pub(crate) fn dot_lanes(a: &[f64], b: &[f64]) -> f64 {
+    let n = a.len().min(b.len());
+    let (a, b) = (&a[..n], &b[..n]);
+    let mut acc = [0.0f64; LANES];
+    let (ca, cb) = (a.chunks_exact(LANES), b.chunks_exact(LANES));
+    let (ra, rb) = (ca.remainder(), cb.remainder());
+    for (x, y) in ca.zip(cb) {
+        for l in 0..LANES {
+            acc[l] += x[l] * y[l];
+        }
+    }
+    let mut s = 0.0;
+    for v in acc {
+        s += v;
+    }
+    for (x, y) in ra.iter().zip(rb) {
+        s += x * y;
+    }
+    s
+}

@@ -8,7 +8,7 @@
 //! value reported; if the two have drifted apart the iteration restarts from the true residual
 //! while iterations remain.
 
-use super::blocks::{sum_rows, MAX_BLOCKS};
+use super::blocks::{dot_lanes, sum_rows, MAX_BLOCKS};
 use super::multigrid::{Multigrid, MultigridParams};
 use super::stencil::Stencil5;
 use super::{check_len, SolveError};
@@ -84,13 +84,7 @@ pub struct Solver {
 impl Solver {
     /// Builds the multigrid hierarchy and all scratch for `a`.
     pub fn new(a: &Stencil5, params: SolverParams) -> Result<Self, SolveError> {
-        if !(params.rtol > 0.0 && params.rtol < 1.0) {
-            return Err(SolveError::InvalidParameter {
-                what: "rtol",
-                value: params.rtol.to_string(),
-                allowed: "in (0, 1)",
-            });
-        }
+        check_rtol(params.rtol)?;
         if params.max_iter == 0 {
             return Err(SolveError::InvalidParameter {
                 what: "max_iter",
@@ -161,6 +155,19 @@ impl Solver {
             v.resize(extra, 0.0);
         }
         Ok(())
+    }
+
+    /// Changes the stopping tolerance of later solves (`rtol` in (0, 1)), keeping the
+    /// hierarchy and all scratch: for inexact inner solves whose tolerance varies per step.
+    pub fn set_rtol(&mut self, rtol: f64) -> Result<(), SolveError> {
+        check_rtol(rtol)?;
+        self.params.rtol = rtol;
+        Ok(())
+    }
+
+    /// The stopping tolerance of the next solve.
+    pub fn rtol(&self) -> f64 {
+        self.params.rtol
     }
 
     /// The method solves use (after resolving [`Method::Auto`]).
@@ -234,9 +241,11 @@ impl Solver {
             if rr.sqrt() <= tol || it >= self.params.max_iter {
                 return Ok((it, rr.sqrt() / bnorm));
             }
-            self.mg.vcycle(a, &self.r, &mut self.z);
+            let mut rz = match self.mg.vcycle(a, &self.r, &mut self.z) {
+                Some(d) => d,
+                None => dot(&self.r, &self.z, nx, rpb),
+            };
             self.p.copy_from_slice(&self.z);
-            let mut rz = dot(&self.r, &self.z, nx, rpb);
             while it < self.params.max_iter {
                 it += 1;
                 let pq = a.apply_dot(&self.p, &mut self.q);
@@ -249,8 +258,10 @@ impl Solver {
                 if rr.sqrt() <= tol {
                     break;
                 }
-                self.mg.vcycle(a, &self.r, &mut self.z);
-                let rz_new = dot(&self.r, &self.z, nx, rpb);
+                let rz_new = match self.mg.vcycle(a, &self.r, &mut self.z) {
+                    Some(d) => d,
+                    None => dot(&self.r, &self.z, nx, rpb),
+                };
                 let beta = rz_new / rz;
                 rz = rz_new;
                 axpby(&mut self.p, &self.z, beta, nx, rpb);
@@ -327,6 +338,20 @@ impl Solver {
     }
 }
 
+fn check_rtol(rtol: f64) -> Result<(), SolveError> {
+    if !(rtol > 0.0 && rtol < 1.0) {
+        return Err(SolveError::InvalidParameter {
+            what: "rtol",
+            value: rtol.to_string(),
+            allowed: "in (0, 1)",
+        });
+    }
+    Ok(())
+}
+
+/// Segment length of the fused update-and-norm loops (fits L1 with its operands).
+const SEG: usize = 1024;
+
 /// Runs `f(offset, a_chunk, b_chunk)` over row blocks of two mutable vectors, summing the
 /// returned values in block order.
 #[inline]
@@ -362,7 +387,7 @@ fn dot(a: &[f64], b: &[f64], nx: usize, rpb: usize) -> f64 {
     let ny = a.len() / nx;
     sum_rows(ny, rpb, |j0, j1| {
         let (s, e) = (j0 * nx, j1 * nx);
-        a[s..e].iter().zip(&b[s..e]).map(|(x, y)| x * y).sum()
+        dot_lanes(&a[s..e], &b[s..e])
     })
 }
 
@@ -379,11 +404,20 @@ fn update_xr(x: &mut [f64], r: &mut [f64], p: &[f64], q: &[f64], alpha: f64, nx:
         let n = xc.len();
         let (p, q) = (&p[o..o + n], &q[o..o + n]);
         let mut acc = 0.0;
-        for i in 0..n {
-            xc[i] += alpha * p[i];
-            let v = rc[i] - alpha * q[i];
-            rc[i] = v;
-            acc += v * v;
+        // Rows of SEG values: update, then sum the squares while the row is in L1.
+        for (((xs, rs), ps), qs) in xc
+            .chunks_mut(SEG)
+            .zip(rc.chunks_mut(SEG))
+            .zip(p.chunks(SEG))
+            .zip(q.chunks(SEG))
+        {
+            for (x, pp) in xs.iter_mut().zip(ps) {
+                *x += alpha * pp;
+            }
+            for (r, qq) in rs.iter_mut().zip(qs) {
+                *r -= alpha * qq;
+            }
+            acc += dot_lanes(rs, rs);
         }
         acc
     })
@@ -413,9 +447,11 @@ fn axpy(y: &mut [f64], x: &[f64], alpha: f64, nx: usize, rpb: usize) {
 fn axpy_norm(y: &mut [f64], x: &[f64], alpha: f64, nx: usize, rpb: usize) -> f64 {
     blocks1(y, nx, rpb, |o, yc| {
         let mut acc = 0.0;
-        for (v, &xx) in yc.iter_mut().zip(&x[o..]) {
-            *v += alpha * xx;
-            acc += *v * *v;
+        for (ys, xs) in yc.chunks_mut(SEG).zip(x[o..].chunks(SEG)) {
+            for (v, &xx) in ys.iter_mut().zip(xs) {
+                *v += alpha * xx;
+            }
+            acc += dot_lanes(ys, ys);
         }
         acc
     })
@@ -449,13 +485,10 @@ fn bicg_update(
     blocks2(x, r, nx, rpb, |o, xc, rc| {
         let n = xc.len();
         let (y, z, t) = (&y[o..o + n], &z[o..o + n], &t[o..o + n]);
-        let mut acc = 0.0;
         for i in 0..n {
             xc[i] += alpha * y[i] + omega * z[i];
-            let v = rc[i] - omega * t[i];
-            rc[i] = v;
-            acc += v * v;
+            rc[i] -= omega * t[i];
         }
-        acc
+        dot_lanes(rc, rc)
     })
 }

@@ -26,6 +26,7 @@
 
 pub mod bench;
 mod blocks;
+mod compact;
 pub mod krylov;
 pub mod multigrid;
 pub mod stencil;

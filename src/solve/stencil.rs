@@ -8,7 +8,8 @@
 //! the right-hand side there. Couplings across a non-periodic side must be zero; because of
 //! that the kernels always index the wrapped neighbour and need no branch at the edges.
 
-use super::blocks::{rows_per_block, sum_rows, sum_rows_mut};
+use super::blocks::{dot_lanes, rows_per_block, sum_rows, sum_rows_mut};
+use super::compact::{self, Compact};
 use super::{check_len, SolveError};
 use crate::grid::{Grid, Mask};
 use crate::ops::boundary::{Boundaries, SideKind};
@@ -130,6 +131,9 @@ pub struct Stencil5 {
     pub(crate) land: Vec<bool>,
     pub(crate) symmetric: bool,
     pub(crate) rpb: usize,
+    /// The matrix-free form (flags and scalars), when the coefficients fit it exactly; the
+    /// products and residuals then read one byte per cell instead of five `f64`.
+    pub(crate) compact: Option<Compact>,
 }
 
 impl Stencil5 {
@@ -181,6 +185,7 @@ impl Stencil5 {
             land,
             symmetric: false,
             rpb: rows_per_block(nx, ny),
+            compact: None,
         };
         s.validate()?;
         Ok(s)
@@ -323,6 +328,7 @@ impl Stencil5 {
             land: vec![false; n],
             symmetric: false,
             rpb: rows_per_block(nx, ny),
+            compact: None,
         }
     }
 
@@ -392,7 +398,17 @@ impl Stencil5 {
             }
         }
         self.symmetric = symmetric;
+        // Exact (bit-for-bit) matrix-free form when the coefficients allow it.
+        self.compact = None;
+        self.compact = Compact::detect(self, 1.0, None, 0.0);
         Ok(())
+    }
+
+    /// Whether products and residuals run matrix-free (constant couplings, flags per cell),
+    /// which reads about a fifth of the memory of the stored coefficients. The results are the
+    /// same bit for bit either way.
+    pub fn is_matrix_free(&self) -> bool {
+        self.compact.is_some()
     }
 
     /// Cells along x.
@@ -490,6 +506,25 @@ impl Stencil5 {
     /// `y = A x`, returning `x . y`.
     pub(crate) fn apply_dot(&self, x: &[f64], y: &mut [f64]) -> f64 {
         let nx = self.nx;
+        if let Some(c) = &self.compact {
+            return sum_rows_mut(y, nx, self.rpb, |j0, out| {
+                let mut dot = 0.0;
+                for (r, yr) in out.chunks_exact_mut(nx).enumerate() {
+                    let j = j0 + r;
+                    let (js, jn) = self.nb_rows(j);
+                    dot += compact::apply_row(
+                        &c.k,
+                        c.rows[j],
+                        &c.flags[j * nx..(j + 1) * nx],
+                        &x[js * nx..(js + 1) * nx],
+                        &x[j * nx..(j + 1) * nx],
+                        &x[jn * nx..(jn + 1) * nx],
+                        yr,
+                    );
+                }
+                dot
+            });
+        }
         sum_rows_mut(y, nx, self.rpb, |j0, out| {
             let mut dot = 0.0;
             for (r, yr) in out.chunks_exact_mut(nx).enumerate() {
@@ -512,6 +547,23 @@ impl Stencil5 {
     /// `||b - A x||^2` without storing the residual.
     pub(crate) fn residual_sq(&self, b: &[f64], x: &[f64]) -> f64 {
         let nx = self.nx;
+        if let Some(c) = &self.compact {
+            return sum_rows(self.ny, self.rpb, |j0, j1| {
+                let mut acc = 0.0;
+                for j in j0..j1 {
+                    let (js, jn) = self.nb_rows(j);
+                    acc += compact::residual_row_sq(
+                        &c.k,
+                        &c.flags[j * nx..(j + 1) * nx],
+                        &x[js * nx..(js + 1) * nx],
+                        &x[j * nx..(j + 1) * nx],
+                        &x[jn * nx..(jn + 1) * nx],
+                        &b[j * nx..(j + 1) * nx],
+                    );
+                }
+                acc
+            });
+        }
         sum_rows(self.ny, self.rpb, |j0, j1| {
             let mut acc = 0.0;
             for j in j0..j1 {
@@ -531,6 +583,27 @@ impl Stencil5 {
     /// `r = b - A x`, returning `||r||^2`.
     pub(crate) fn residual_into(&self, b: &[f64], x: &[f64], r: &mut [f64]) -> f64 {
         let nx = self.nx;
+        if let Some(c) = &self.compact {
+            return sum_rows_mut(r, nx, self.rpb, |j0, out| {
+                let mut acc = 0.0;
+                for (k, rr) in out.chunks_exact_mut(nx).enumerate() {
+                    let j = j0 + k;
+                    let (js, jn) = self.nb_rows(j);
+                    compact::residual_row(
+                        &c.k,
+                        c.rows[j],
+                        &c.flags[j * nx..(j + 1) * nx],
+                        &x[js * nx..(js + 1) * nx],
+                        &x[j * nx..(j + 1) * nx],
+                        &x[jn * nx..(jn + 1) * nx],
+                        &b[j * nx..(j + 1) * nx],
+                        rr,
+                    );
+                    acc += dot_lanes(rr, rr);
+                }
+                acc
+            });
+        }
         sum_rows_mut(r, nx, self.rpb, |j0, out| {
             let mut acc = 0.0;
             for (k, rr) in out.chunks_exact_mut(nx).enumerate() {

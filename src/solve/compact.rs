@@ -1,0 +1,368 @@
+//! Matrix-free form of a 5-point operator with constant couplings: one byte of flags per cell
+//! and six scalars instead of five `f64` coefficient arrays (40 bytes per cell). It covers the
+//! diffusion operators of [`Stencil5::diffusion`] with uniform `theta dt K` on a uniform grid
+//! (land, closed, periodic and Dirichlet sides included) and, in the all-water case, their
+//! multigrid coarse operators, whose couplings stay constant under 2x2 aggregation with halved
+//! couplings.
+//!
+//! Row `k` of the operator is `diag_k x_k - (w x_W + e x_E + s x_S + n x_N)` with
+//! `w, e = cx` or 0, `s, n = cy` or 0 by the open-face bits, and
+//! `diag_k = m + w + e + s + n + [gx] + [gy]` (the bracketed terms when the cell has a
+//! Dirichlet face in x or y), added in that order, which is the order of the assembly in
+//! [`Stencil5::assemble`]. Adding a zero and multiplying by a zero coupling are exact in IEEE
+//! arithmetic, so on the fine level this form reproduces the stored-coefficient product bit
+//! for bit. Land cells are identity rows. The byte also lets the kernels run on whole rows with
+//! selects instead of branches, so they vectorise.
+//!
+//! [`Stencil5::diffusion`]: super::Stencil5::diffusion
+//! [`Stencil5::assemble`]: super::Stencil5::assemble
+
+use super::blocks::{dot_lanes, LANES};
+use super::stencil::Stencil5;
+
+/// West face open.
+pub(crate) const W: u8 = 1;
+/// East face open.
+pub(crate) const E: u8 = 2;
+/// South face open.
+pub(crate) const S: u8 = 4;
+/// North face open.
+pub(crate) const N: u8 = 8;
+/// A Dirichlet face on a west or east side (adds `gx` to the diagonal).
+pub(crate) const DX: u8 = 16;
+/// A Dirichlet face on a south or north side (adds `gy`).
+pub(crate) const DY: u8 = 32;
+/// Land: identity row.
+pub(crate) const LAND: u8 = 64;
+
+/// The scalars of a compact operator.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) struct Consts {
+    pub m: f64,
+    pub cx: f64,
+    pub cy: f64,
+    pub gx: f64,
+    pub gy: f64,
+}
+
+/// Marks a row whose interior cells (all but the first and last) do not share one flag byte.
+pub(crate) const MIXED: u8 = 0xFF;
+
+/// A compact operator: flags per cell plus [`Consts`], and per row the flag byte shared by
+/// all its interior cells ([`MIXED`] if none), so uniform rows run a select-free loop.
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct Compact {
+    pub k: Consts,
+    pub flags: Vec<u8>,
+    pub rows: Vec<u8>,
+}
+
+impl Consts {
+    /// The diagonal of a cell with flags `f`, summed in the assembly's order.
+    #[inline(always)]
+    pub fn diag(&self, f: u8) -> f64 {
+        let w = if f & W != 0 { self.cx } else { 0.0 };
+        let e = if f & E != 0 { self.cx } else { 0.0 };
+        let s = if f & S != 0 { self.cy } else { 0.0 };
+        let n = if f & N != 0 { self.cy } else { 0.0 };
+        let dx = if f & DX != 0 { self.gx } else { 0.0 };
+        let dy = if f & DY != 0 { self.gy } else { 0.0 };
+        let d = self.m + w + e + s + n + dx + dy;
+        if f & LAND != 0 {
+            1.0
+        } else {
+            d
+        }
+    }
+
+    /// `(diag, w, e, s, n)` of a cell with flags `f` (the same values the selects give).
+    #[inline(always)]
+    pub fn coefs(&self, f: u8) -> (f64, f64, f64, f64, f64) {
+        let w = if f & W != 0 { self.cx } else { 0.0 };
+        let e = if f & E != 0 { self.cx } else { 0.0 };
+        let s = if f & S != 0 { self.cy } else { 0.0 };
+        let n = if f & N != 0 { self.cy } else { 0.0 };
+        (self.diag(f), w, e, s, n)
+    }
+
+    /// `w x_W + e x_E + s x_S + n x_N` for a cell with flags `f`.
+    #[inline(always)]
+    pub fn nb(&self, f: u8, xw: f64, xe: f64, xs: f64, xn: f64) -> f64 {
+        let w = if f & W != 0 { self.cx } else { 0.0 };
+        let e = if f & E != 0 { self.cx } else { 0.0 };
+        let s = if f & S != 0 { self.cy } else { 0.0 };
+        let n = if f & N != 0 { self.cy } else { 0.0 };
+        w * xw + e * xe + s * xs + n * xn
+    }
+}
+
+impl Compact {
+    /// The compact form of `a` if its coefficients fit it with identity weight `m` and
+    /// Dirichlet diagonal terms `gx`, `gy` (taken as twice the couplings when `None`). With
+    /// `tol = 0` every diagonal must match bit for bit; otherwise within `tol` relative (used on
+    /// coarse levels, where the form only serves the preconditioner). Needs at least 3 cells
+    /// each way (so a cell touches at most one x side and one y side) and land only when
+    /// `m = 1`.
+    pub fn detect(a: &Stencil5, m: f64, g: Option<(f64, f64)>, tol: f64) -> Option<Self> {
+        let (nx, ny) = (a.nx, a.ny);
+        if nx < 3 || ny < 3 {
+            return None;
+        }
+        let mut cx = 0.0f64;
+        let mut cy = 0.0f64;
+        for k in 0..nx * ny {
+            if cx == 0.0 {
+                cx = a.aw[k].max(a.ae[k]);
+            }
+            if cy == 0.0 {
+                cy = a.as_[k].max(a.an[k]);
+            }
+        }
+        let (gx, gy) = g.unwrap_or((2.0 * cx, 2.0 * cy));
+        let k = Consts { m, cx, cy, gx, gy };
+        let mut flags = vec![0u8; nx * ny];
+        let close = |v: f64, want: f64| v == want || (tol > 0.0 && (v - want).abs() <= tol * want.abs());
+        for j in 0..ny {
+            for i in 0..nx {
+                let c = j * nx + i;
+                if a.land[c] {
+                    if m != 1.0 {
+                        return None;
+                    }
+                    flags[c] = LAND;
+                    continue;
+                }
+                let mut f = 0u8;
+                for (v, bit, want) in [(a.aw[c], W, cx), (a.ae[c], E, cx), (a.as_[c], S, cy), (a.an[c], N, cy)] {
+                    if v != 0.0 {
+                        if !close(v, want) {
+                            return None;
+                        }
+                        f |= bit;
+                    }
+                }
+                // Dirichlet terms only where the cell lies on a non-periodic side.
+                let x_edge = !a.periodic_x && (i == 0 || i + 1 == nx);
+                let y_edge = !a.periodic_y && (j == 0 || j + 1 == ny);
+                let mut found = false;
+                for (dx, dy) in [(false, false), (true, false), (false, true), (true, true)] {
+                    if (dx && !x_edge) || (dy && !y_edge) {
+                        continue;
+                    }
+                    let ff = f | if dx { DX } else { 0 } | if dy { DY } else { 0 };
+                    if close(a.diag[c], k.diag(ff)) {
+                        f = ff;
+                        found = true;
+                        break;
+                    }
+                }
+                if !found {
+                    return None;
+                }
+                flags[c] = f;
+            }
+        }
+        let rows = flags
+            .chunks_exact(nx)
+            .map(|r| {
+                let inner = &r[1..nx - 1];
+                if inner.iter().all(|&f| f == inner[0]) {
+                    inner[0]
+                } else {
+                    MIXED
+                }
+            })
+            .collect();
+        Some(Self { k, flags, rows })
+    }
+}
+
+/// `y = A x` on one row (`u`: the row's shared interior flags or [`MIXED`]; `xs`, `x`, `xn`: south, own and north rows; neighbours across the row
+/// ends wrap, their couplings are zero unless periodic). Returns `x . y` on the row.
+#[inline(always)]
+pub(crate) fn apply_row(k: &Consts, u: u8, f: &[u8], xs: &[f64], x: &[f64], xn: &[f64], y: &mut [f64]) -> f64 {
+    let n = x.len();
+    let (f, xs, xn, y) = (&f[..n], &xs[..n], &xn[..n], &mut y[..n]);
+    if n < 3 {
+        let mut dot = 0.0;
+        for i in 0..n {
+            let (xw, xe) = (x[(i + n - 1) % n], x[(i + 1) % n]);
+            y[i] = k.diag(f[i]) * x[i] - k.nb(f[i], xw, xe, xs[i], xn[i]);
+            dot += x[i] * y[i];
+        }
+        return dot;
+    }
+    let l = n - 1;
+    y[0] = k.diag(f[0]) * x[0] - k.nb(f[0], x[l], x[1], xs[0], xn[0]);
+    {
+        let m = n - 2;
+        let (f, xw, xc, xe, xs, xn, y) = (
+            &f[1..=m],
+            &x[..m],
+            &x[1..=m],
+            &x[2..],
+            &xs[1..=m],
+            &xn[1..=m],
+            &mut y[1..=m],
+        );
+        if u != MIXED {
+            let (d, cw, ce, cs, cn) = k.coefs(u);
+            for i in 0..m {
+                y[i] = d * xc[i] - (cw * xw[i] + ce * xe[i] + cs * xs[i] + cn * xn[i]);
+            }
+        } else {
+            for i in 0..m {
+                y[i] = k.diag(f[i]) * xc[i] - k.nb(f[i], xw[i], xe[i], xs[i], xn[i]);
+            }
+        }
+    }
+    y[l] = k.diag(f[l]) * x[l] - k.nb(f[l], x[l - 1], x[0], xs[l], xn[l]);
+    dot_lanes(x, y)
+}
+
+/// `r = b - A x` on one row (`u`: the row's shared interior flags or [`MIXED`]).
+#[allow(clippy::too_many_arguments)]
+#[inline(always)]
+pub(crate) fn residual_row(k: &Consts, u: u8, f: &[u8], xs: &[f64], x: &[f64], xn: &[f64], b: &[f64], r: &mut [f64]) {
+    let n = x.len();
+    let (f, xs, xn, b, r) = (&f[..n], &xs[..n], &xn[..n], &b[..n], &mut r[..n]);
+    let l = n - 1;
+    r[0] = b[0] - (k.diag(f[0]) * x[0] - k.nb(f[0], x[l], x[1 % n], xs[0], xn[0]));
+    if n < 3 {
+        if n == 2 {
+            r[1] = b[1] - (k.diag(f[1]) * x[1] - k.nb(f[1], x[0], x[0], xs[1], xn[1]));
+        }
+        return;
+    }
+    {
+        let m = n - 2;
+        let (f, xw, xc, xe, xs, xn, b, r) = (
+            &f[1..=m],
+            &x[..m],
+            &x[1..=m],
+            &x[2..],
+            &xs[1..=m],
+            &xn[1..=m],
+            &b[1..=m],
+            &mut r[1..=m],
+        );
+        if u != MIXED {
+            let (d, cw, ce, cs, cn) = k.coefs(u);
+            for i in 0..m {
+                r[i] = b[i] - (d * xc[i] - (cw * xw[i] + ce * xe[i] + cs * xs[i] + cn * xn[i]));
+            }
+        } else {
+            for i in 0..m {
+                r[i] = b[i] - (k.diag(f[i]) * xc[i] - k.nb(f[i], xw[i], xe[i], xs[i], xn[i]));
+            }
+        }
+    }
+    r[l] = b[l] - (k.diag(f[l]) * x[l] - k.nb(f[l], x[l - 1], x[0], xs[l], xn[l]));
+}
+
+/// `||b - A x||^2` on one row.
+#[inline(always)]
+pub(crate) fn residual_row_sq(k: &Consts, f: &[u8], xs: &[f64], x: &[f64], xn: &[f64], b: &[f64]) -> f64 {
+    let n = x.len();
+    let (f, xs, xn, b) = (&f[..n], &xs[..n], &xn[..n], &b[..n]);
+    let l = n - 1;
+    let res = |i: usize, xw: f64, xe: f64| b[i] - (k.diag(f[i]) * x[i] - k.nb(f[i], xw, xe, xs[i], xn[i]));
+    if n < 3 {
+        return (0..n).map(|i| res(i, x[(i + n - 1) % n], x[(i + 1) % n]).powi(2)).sum();
+    }
+    let v0 = res(0, x[l], x[1]);
+    let mut acc = v0 * v0;
+    {
+        let m = n - 2;
+        let (f, xw, xc, xe, xs, xn, b) = (
+            &f[1..=m],
+            &x[..m],
+            &x[1..=m],
+            &x[2..],
+            &xs[1..=m],
+            &xn[1..=m],
+            &b[1..=m],
+        );
+        let mut lanes = [0.0f64; LANES];
+        let whole = m / LANES * LANES;
+        for c in (0..whole).step_by(LANES) {
+            for (t, lane) in lanes.iter_mut().enumerate() {
+                let i = c + t;
+                let v = b[i] - (k.diag(f[i]) * xc[i] - k.nb(f[i], xw[i], xe[i], xs[i], xn[i]));
+                *lane += v * v;
+            }
+        }
+        for v in lanes {
+            acc += v;
+        }
+        for i in whole..m {
+            let v = b[i] - (k.diag(f[i]) * xc[i] - k.nb(f[i], xw[i], xe[i], xs[i], xn[i]));
+            acc += v * v;
+        }
+    }
+    let v1 = res(l, x[l - 1], x[0]);
+    acc + v1 * v1
+}
+
+/// One colour of a red-black Gauss–Seidel half-sweep on a row, out of place: cells with
+/// `i % 2 == start` get `(b + neighbours) * inv`, the others copy `x`. Rows have >= 3 cells.
+#[allow(clippy::too_many_arguments)]
+#[inline(always)]
+pub(crate) fn relax_row(
+    k: &Consts,
+    u: u8,
+    f: &[u8],
+    inv: &[f64],
+    b: &[f64],
+    xs: &[f64],
+    x: &[f64],
+    xn: &[f64],
+    out: &mut [f64],
+    start: usize,
+) {
+    let n = x.len();
+    let (f, inv, b, xs, xn, out) = (&f[..n], &inv[..n], &b[..n], &xs[..n], &xn[..n], &mut out[..n]);
+    let l = n - 1;
+    let upd = |i: usize, xw: f64, xe: f64| (b[i] + k.nb(f[i], xw, xe, xs[i], xn[i])) * inv[i];
+    out[0] = if start == 0 { upd(0, x[l], x[1]) } else { x[0] };
+    {
+        let m = n - 2;
+        let (f, inv, b, xw, xc, xe, xs, xn, out) = (
+            &f[1..=m],
+            &inv[1..=m],
+            &b[1..=m],
+            &x[..m],
+            &x[1..=m],
+            &x[2..],
+            &xs[1..=m],
+            &xn[1..=m],
+            &mut out[1..=m],
+        );
+        // Interior cell i + 1 is relaxed when (i + 1) % 2 == start.
+        let par = 1 - start;
+        if u != MIXED {
+            let (_, cw, ce, cs, cn) = k.coefs(u);
+            for i in 0..m {
+                let v = (b[i] + (cw * xw[i] + ce * xe[i] + cs * xs[i] + cn * xn[i])) * inv[i];
+                out[i] = if i & 1 == par { v } else { xc[i] };
+            }
+        } else {
+            for i in 0..m {
+                let v = (b[i] + k.nb(f[i], xw[i], xe[i], xs[i], xn[i])) * inv[i];
+                out[i] = if i & 1 == par { v } else { xc[i] };
+            }
+        }
+    }
+    out[l] = if l % 2 == start { upd(l, x[l - 1], x[0]) } else { x[l] };
+}
+
+/// The first red-black half-sweep from a zero guess on a row: cells with `i % 2 == start` get
+/// `b * inv`, the others 0.
+#[inline(always)]
+pub(crate) fn first_colour_row(inv: &[f64], b: &[f64], out: &mut [f64], start: usize) {
+    let n = out.len();
+    let (inv, b) = (&inv[..n], &b[..n]);
+    for i in 0..n {
+        out[i] = if i & 1 == start { b[i] * inv[i] } else { 0.0 };
+    }
+}
