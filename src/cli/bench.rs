@@ -25,6 +25,13 @@ pub struct BenchArgs {
     /// Threads (default: all cores).
     #[arg(long)]
     threads: Option<usize>,
+    /// Instead of the explicit step, time the implicit backward-Euler diffusion step (diffusion
+    /// number 10, zero-flux sides, relative residual 1e-10, previous step as initial guess).
+    #[arg(long)]
+    implicit: bool,
+    /// Steps per size for `--implicit`.
+    #[arg(long, default_value_t = 7)]
+    steps: usize,
 }
 
 /// Runs `tinct bench`.
@@ -36,6 +43,8 @@ pub fn main(a: BenchArgs) -> Result<(), Failure> {
         seconds,
         reference,
         threads,
+        implicit,
+        steps,
     } = a;
     let schemes = parse_schemes(&schemes)?;
     if let Some(t) = threads {
@@ -43,6 +52,9 @@ pub fn main(a: BenchArgs) -> Result<(), Failure> {
             .num_threads(t)
             .build_global()
             .map_err(|e| bad_input(format!("--threads: {e}")))?;
+    }
+    if implicit {
+        return implicit_bench(&sizes, steps);
     }
     let refs = std::fs::read_to_string(&reference).ok();
     println!(
@@ -91,6 +103,45 @@ pub fn main(a: BenchArgs) -> Result<(), Failure> {
                 t.scheme, t.n, t.median, t.min, t.max, t.steps
             );
         }
+    }
+    Ok(())
+}
+
+/// The implicit diffusion step: median milliseconds per step, iterations and set-up per size,
+/// and the time ratio between consecutive sizes.
+fn implicit_bench(sizes: &[usize], steps: usize) -> Result<(), Failure> {
+    use tinct::solve::bench::implicit_diffusion;
+    use tinct::solve::SolverParams;
+    println!(
+        "implicit backward-Euler diffusion, diffusion number 10, zero-flux sides, rtol 1e-10; {} thread(s)",
+        rayon::current_num_threads()
+    );
+    println!(
+        "{:>6} {:>12} {:>10} {:>10} {:>11} {:>14}",
+        "N", "ms/step", "min", "max", "iterations", "setup ms"
+    );
+    let mut prev: Option<(usize, f64)> = None;
+    for &n in sizes {
+        if n < 16 {
+            return Err(bad_input(format!("--sizes: {n} is too small (at least 16)")));
+        }
+        let r =
+            implicit_diffusion(n, steps.max(1), 10.0, SolverParams::default()).map_err(|e| failed(e.to_string()))?;
+        let ms = |v: f64| 1e3 * v;
+        let lo = r.seconds.iter().cloned().fold(f64::INFINITY, f64::min);
+        let hi = r.seconds.iter().cloned().fold(0.0, f64::max);
+        println!(
+            "{n:>6} {:>12.2} {:>10.2} {:>10.2} {:>11.1} {:>14.1}",
+            ms(r.median_seconds()),
+            ms(lo),
+            ms(hi),
+            r.median_iterations(),
+            ms(r.setup_seconds)
+        );
+        if let Some((n0, t0)) = prev {
+            println!("       time ratio N = {n} / N = {n0}: {:.2}", r.median_seconds() / t0);
+        }
+        prev = Some((n, r.median_seconds()));
     }
     Ok(())
 }
