@@ -154,20 +154,27 @@ fn upwind_spreads_at_the_modified_equation_diffusivity() {
     );
 }
 
-/// Steady 1D convection-diffusion between fixed values: phi(0) = 1, phi(L) = 0, length 1,
-/// diffusivity 0.1, velocity u, marched to steady state with central differencing.
-fn steady_1d(n: usize, u: f64, limiter: Limiter) -> Vec<f64> {
-    let dx = 1.0 / n as f64;
+/// A 1D column of `n` cells over `len` m (one row, walls north and south) with velocity `u`,
+/// diffusivity `k`, the value 1 fixed at the west end and `east` at the other.
+fn column(n: usize, len: f64, u: f64, k: f64, east: SideKind) -> tinct::model::ModelSpec {
+    let dx = len / n as f64;
     let grid = Grid::new(n, 1, dx, dx, 0.0, 0.0).unwrap();
     let b = Boundaries {
         west: SideKind::Fixed { value: 1.0 },
-        east: SideKind::Fixed { value: 0.0 },
+        east,
         south: SideKind::Wall,
         north: SideKind::Wall,
     };
     let mut sp = spec(grid, FlowKind::Uniform { u, v: 0.0 }, b);
-    sp.kx = 0.1;
-    sp.ky = 0.1;
+    sp.kx = k;
+    sp.ky = k;
+    sp
+}
+
+/// Steady 1D convection-diffusion between fixed values: phi(0) = 1, phi(L) = 0, length 1,
+/// diffusivity 0.1, velocity u, marched to steady state with central differencing.
+fn steady_1d(n: usize, u: f64, limiter: Limiter) -> Vec<f64> {
+    let sp = column(n, 1.0, u, 0.1, SideKind::Fixed { value: 0.0 });
     let mut s = sim(sp, scheme(limiter, 3), |_, _| 0.0);
     // Slowest decay rate about pi^2 K / L^2 ~ 1/s: 60 s is ample.
     run_to(&mut s, 60.0, |_| {});
@@ -245,16 +252,7 @@ fn continuous_injection_matches_ogata_banks() {
         0.5 * (libm::erfc((x - u * t) / s) + (u * x / d).exp() * libm::erfc((x + u * t) / s))
     };
     let dx = len / n as f64;
-    let grid = Grid::new(n, 1, dx, dx, 0.0, 0.0).unwrap();
-    let b = Boundaries {
-        west: SideKind::Fixed { value: 1.0 },
-        east: SideKind::Open { value: 0.0 },
-        south: SideKind::Wall,
-        north: SideKind::Wall,
-    };
-    let mut sp = spec(grid, FlowKind::Uniform { u, v: 0.0 }, b);
-    sp.kx = d;
-    sp.ky = d;
+    let sp = column(n, len, u, d, SideKind::Open { value: 0.0 });
     let mut s = sim(sp, scheme(Limiter::VanLeer, 2), |_, _| 0.0);
     run_to(&mut s, t, |_| {});
     let f = s.field();
@@ -358,17 +356,7 @@ fn implicit_peclet_schemes_reach_the_explicit_steady_state() {
     // (and hybrid) in the matrix must land on the explicit steady profile.
     for lim in [Limiter::PowerLaw, Limiter::Hybrid] {
         let explicit = steady_1d(5, 2.5, lim);
-        let dx = 0.2;
-        let grid = Grid::new(5, 1, dx, dx, 0.0, 0.0).unwrap();
-        let b = Boundaries {
-            west: SideKind::Fixed { value: 1.0 },
-            east: SideKind::Fixed { value: 0.0 },
-            south: SideKind::Wall,
-            north: SideKind::Wall,
-        };
-        let mut sp = spec(grid, FlowKind::Uniform { u: 2.5, v: 0.0 }, b);
-        sp.kx = 0.1;
-        sp.ky = 0.1;
+        let sp = column(5, 1.0, 2.5, 0.1, SideKind::Fixed { value: 0.0 });
         let sch = Scheme {
             time: tinct::step::TimeScheme::Implicit,
             courant: 5.0,
