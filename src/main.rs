@@ -17,6 +17,9 @@ struct Cli {
 enum Command {
     /// Run a scenario and write frames, logs, fields and a summary to `<dir>/<name>/`.
     Run(cli::run::RunArgs),
+    /// Regime report without time marching: Peclet and Courant maps, stable steps, numerical
+    /// diffusion, advice; writes `<dir>/<name>/check/`.
+    Check(cli::check::CheckArgs),
     /// Print a ready-to-run example scenario.
     Example(cli::example::ExampleArgs),
     /// Throughput of the explicit step (million cell updates per second) on the shared
@@ -27,6 +30,7 @@ enum Command {
 fn main() -> ExitCode {
     let result = match Cli::parse().command {
         Command::Run(a) => cli::run::main(a),
+        Command::Check(a) => cli::check::main(a),
         Command::Example(a) => cli::example::main(a),
         Command::Bench(a) => cli::bench::main(a),
     };

@@ -18,6 +18,10 @@ pub struct RunArgs {
     /// No progress bar or warnings on stderr.
     #[arg(long)]
     quiet: bool,
+    /// Run even with a fixed `scheme.dt` above the explicit stability limit (to demonstrate
+    /// the instability; never for results).
+    #[arg(long)]
+    force: bool,
 }
 
 /// Runs `tinct run`.
@@ -27,12 +31,14 @@ pub fn main(a: RunArgs) -> Result<(), Failure> {
         out,
         sets,
         quiet,
+        force,
     } = a;
     let path = scenario.as_path();
     let sets = &sets[..];
     use indicatif::{ProgressBar, ProgressStyle};
     use tinct::run::{execute, RunFailure};
-    let scn = tinct::scenario::load(path, sets).map_err(|e| bad_input(e.to_string()))?;
+    let options = tinct::scenario::LoadOptions { allow_unstable: force };
+    let scn = tinct::scenario::load_with(path, sets, options).map_err(|e| bad_input(e.to_string()))?;
     let base = out.unwrap_or_else(|| scn.output.dir.clone());
     let bar = if quiet {
         ProgressBar::hidden()

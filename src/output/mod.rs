@@ -6,6 +6,8 @@
 //!   [`ColourScale`] and [`normalise`], the land shade [`LAND_RGB`].
 //! - [`frame`]: PNG concentration frames ([`FrameSpec`], [`render_frame`],
 //!   [`write_frame_png`], [`frame_layout`], [`format_time`]).
+//! - [`maps`]: PNG maps of per-cell diagnostics (categorical with a legend, continuous with a
+//!   colour bar) for `tinct check`.
 //! - [`netcdf`]: CF-1.8 NetCDF-3 field files ([`FieldsWriter`], [`FieldMeta`],
 //!   [`FILL_VALUE`]), written record by record.
 //! - [`error`]: [`OutputError`], naming the file in every variant.
@@ -15,6 +17,7 @@ pub mod atomic;
 pub mod colour;
 pub mod error;
 pub mod frame;
+pub mod maps;
 pub mod netcdf;
 mod text;
 

@@ -75,7 +75,8 @@ pub fn standard_name(tracer: &str) -> Option<&'static str> {
 }
 
 /// Runs `scn`, writing into `<out_base>/<name>/`. `on_start` receives the warnings about the
-/// numerical choices once the run is set up; `progress` is called after every step.
+/// numerical choices once the run is set up (the advice of `tinct check` of severity warning
+/// and above, which includes [`crate::step::scheme_warnings`]); `progress` is called after every step.
 pub fn execute(
     scn: &Scenario,
     out_base: &Path,
@@ -98,7 +99,16 @@ pub fn execute(
     let mut receptors = ReceptorLog::new(&grid, &recs)
         .ok_or_else(|| RunFailure::BadInput(format!("{}: a receptor lies outside the grid", scn.path.display())))?;
 
-    on_start(&sim.warnings());
+    // Advice about the numerical choices (as `tinct check` gives it); warnings go to on_start.
+    let (_, regime) = crate::diagnostics::regime::analyse(&sim.model, &sim.scheme, sim.dt_max());
+    let advice = crate::diagnostics::advice::advise(&sim.model, &sim.scheme, &regime);
+    let start_warnings: Vec<String> = advice
+        .iter()
+        .filter(|a| a.severity >= crate::diagnostics::advice::Severity::Warning)
+        .map(|a| a.text.clone())
+        .collect();
+    on_start(&start_warnings);
+    let mut plume = summary::PlumeTrack::new(scn);
     let dir = out_base.join(&scn.name);
     let frames_dir = dir.join("frames");
     std::fs::create_dir_all(&frames_dir).map_err(|e| OutputError::io(&frames_dir, e))?;
@@ -142,6 +152,7 @@ pub fn execute(
         fields.write_record(sim.state.t, &values, Some(&wet))
     };
     write_frame(&sim, 0, &mut fields)?;
+    plume.observe(&grid, sim.state.t, &sim.field(), &wet);
 
     let end = scn.run.end;
     let log_every = scn.run.log_every.max(1);
@@ -181,6 +192,7 @@ pub fn execute(
             rows.push(sim.budget_row());
         }
         write_frame(&sim, k, &mut fields)?;
+        plume.observe(&grid, sim.state.t, &sim.field(), &wet);
         written += 1;
     }
     let wall = started.elapsed().as_secs_f64();
@@ -190,7 +202,7 @@ pub fn execute(
     output::write_atomic(&dir.join("receptors.csv"), receptors.csv().as_bytes())?;
     fields.finish()?;
     remove_stale_frames(&frames_dir, written);
-    let summary = RunSummary::new(
+    let mut summary = RunSummary::new(
         scn,
         &sim,
         &rows,
@@ -201,6 +213,8 @@ pub fn execute(
         failure.as_ref(),
         iterations,
     );
+    summary.advice = advice;
+    (summary.effective_diffusivity, summary.effective_diffusivity_reason) = plume.finish(sim.model.kx, sim.model.ky);
     let json = serde_json::to_string_pretty(&summary).expect("summary serialises");
     output::write_atomic(&dir.join("summary.json"), json.as_bytes())?;
     let outcome = RunOutcome { dir, summary };

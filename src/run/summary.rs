@@ -2,7 +2,12 @@
 
 use super::receptors::ReceptorStats;
 use crate::budget::BudgetRow;
+use crate::diagnostics::advice::Advice;
+use crate::diagnostics::moments::{effective_diffusivity, moments, Moments};
+use crate::grid::Grid;
+use crate::initial::Initial;
 use crate::ops::boundary::{Side, SideKind};
+use crate::ops::sources::Release;
 use crate::scenario::Scenario;
 use crate::step::Simulation;
 use crate::RunError;
@@ -24,6 +29,121 @@ pub struct SchemeFacts {
     pub courant: f64,
     /// The fixed step, if one was given.
     pub dt: Option<f64>,
+}
+
+/// The plume's effective diffusivity, measured from the growth of its second moments between
+/// two frames (for a single release the variance grows as `2 K t` along each axis; Taylor 1921,
+/// common practice), beside the physical one. It includes the scheme's numerical diffusion.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct EffectiveDiffusivity {
+    /// Measured along x, m2/s.
+    pub kx: f64,
+    /// Measured along y, m2/s.
+    pub ky: f64,
+    /// Physical diffusivity along x, m2/s.
+    pub physical_kx: f64,
+    /// Physical diffusivity along y, m2/s.
+    pub physical_ky: f64,
+    /// First frame time used, s.
+    pub from_time: f64,
+    /// Last frame time used, s.
+    pub to_time: f64,
+    /// How the frames were chosen.
+    pub note: String,
+}
+
+/// Follows a single release's moments at frame times and keeps the first and last frames where
+/// the plume (centroid plus or minus three standard deviations) is away from the sides.
+#[derive(Debug, Clone)]
+pub struct PlumeTrack {
+    /// Why no measurement is possible (not a single release), if so.
+    refused: Option<String>,
+    first: Option<(f64, Moments)>,
+    last: Option<(f64, Moments)>,
+    frames_touching: usize,
+}
+
+impl PlumeTrack {
+    /// A tracker for `scn`: measures only when the tracer comes from one release (one
+    /// instantaneous source over a zero initial field, or a Gaussian or cone initial field
+    /// without sources).
+    pub fn new(scn: &Scenario) -> Self {
+        let instant = |s: &crate::ops::sources::SourceSpec| matches!(s.release, Release::Instant { .. });
+        let refused = match (&scn.initial, scn.model.sources.as_slice()) {
+            (Initial::Zero, [s]) if instant(s) => None,
+            (Initial::Gaussian { .. } | Initial::Cone { .. }, []) => None,
+            (Initial::Zero, []) => Some("no tracer is released".to_string()),
+            _ => Some(
+                "not a single release (measured only for one instantaneous source, or a Gaussian or cone initial field without sources)"
+                    .to_string(),
+            ),
+        };
+        Self {
+            refused,
+            first: None,
+            last: None,
+            frames_touching: 0,
+        }
+    }
+
+    /// Records the frame at time `t` (`field` and `wet` `nx * ny`, row 0 south).
+    pub fn observe(&mut self, grid: &Grid, t: f64, field: &[f64], wet: &[bool]) {
+        if self.refused.is_some() {
+            return;
+        }
+        let Some(m) = moments(grid, field, Some(wet)) else {
+            return;
+        };
+        let (sx, sy) = (3.0 * m.var_x.sqrt(), 3.0 * m.var_y.sqrt());
+        let inside = m.x - sx >= grid.x0
+            && m.x + sx <= grid.x0 + grid.lx()
+            && m.y - sy >= grid.y0
+            && m.y + sy <= grid.y0 + grid.ly();
+        if !inside {
+            self.frames_touching += 1;
+            return;
+        }
+        if self.first.is_none() {
+            self.first = Some((t, m));
+        }
+        self.last = Some((t, m));
+    }
+
+    /// The measurement, or why there is none.
+    pub fn finish(&self, kx: f64, ky: f64) -> (Option<EffectiveDiffusivity>, Option<String>) {
+        if let Some(r) = &self.refused {
+            return (None, Some(r.clone()));
+        }
+        match (self.first, self.last) {
+            (Some((t0, a)), Some((t1, b))) if t1 > t0 => {
+                let (ex, ey) = effective_diffusivity(&a, &b, t1 - t0);
+                let note = if self.frames_touching > 0 {
+                    format!(
+                        "variance growth between the first and last frames where the plume (centroid +- 3 standard deviations) is inside the grid; {} frame(s) where it reached a side were skipped",
+                        self.frames_touching
+                    )
+                } else {
+                    "variance growth between the first and last frames with the plume (centroid +- 3 standard deviations) inside the grid".to_string()
+                };
+                (
+                    Some(EffectiveDiffusivity {
+                        kx: ex,
+                        ky: ey,
+                        physical_kx: kx,
+                        physical_ky: ky,
+                        from_time: t0,
+                        to_time: t1,
+                        note,
+                    }),
+                    None,
+                )
+            }
+            _ => (
+                None,
+                Some("fewer than two frames with the plume away from the sides".to_string()),
+            ),
+        }
+    }
 }
 
 /// What crossed one side over the run.
@@ -98,6 +218,12 @@ pub struct RunSummary {
     pub corrections: usize,
     /// Warnings about the numerical choices.
     pub warnings: Vec<String>,
+    /// Advice about the numerical choices (the same as `tinct check` gives).
+    pub advice: Vec<Advice>,
+    /// The plume's effective diffusivity against the physical one (single releases only).
+    pub effective_diffusivity: Option<EffectiveDiffusivity>,
+    /// Why `effective_diffusivity` is null, if it is.
+    pub effective_diffusivity_reason: Option<String>,
     /// Per-receptor statistics.
     pub receptors: Vec<ReceptorStats>,
     /// Files of the run, relative to its folder.
@@ -193,6 +319,9 @@ impl RunSummary {
             solver_iterations: iterations.0,
             corrections: iterations.1,
             warnings: sim.warnings(),
+            advice: Vec::new(),
+            effective_diffusivity: None,
+            effective_diffusivity_reason: None,
             receptors: receptors.to_vec(),
             files,
             caution: super::CAUTION.into(),

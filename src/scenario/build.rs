@@ -101,8 +101,9 @@ struct GridOut {
     land: Option<PathBuf>,
 }
 
-/// Parses and validates; the error is every problem found.
-pub(super) fn parse(text: &str, path: &Path, sets: &[String]) -> Result<Scenario, Vec<Problem>> {
+/// Parses and validates; the error is every problem found. `allow_unstable` accepts a fixed
+/// step above the explicit stability bound (`--force`).
+pub(super) fn parse(text: &str, path: &Path, sets: &[String], allow_unstable: bool) -> Result<Scenario, Vec<Problem>> {
     let mut doc: Table = match toml::from_str(text) {
         Ok(t) => t,
         Err(e) => return Err(vec![syntax_problem(text, &e)]),
@@ -133,9 +134,10 @@ pub(super) fn parse(text: &str, path: &Path, sets: &[String]) -> Result<Scenario
             Some(boundaries),
             Some(initial),
             Some(sources),
-            Some(scheme),
+            Some(mut scheme),
             Some(output),
         ) if p.len() == 0 => {
+            scheme.allow_unstable = allow_unstable;
             let model = ModelSpec {
                 grid: g.grid,
                 mask: g.mask,

@@ -134,11 +134,24 @@ impl fmt::Display for ScenarioError {
 
 impl std::error::Error for ScenarioError {}
 
+/// How a scenario is loaded.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct LoadOptions {
+    /// Accept a fixed `scheme.dt` above the explicit stability bound (sets
+    /// [`Scheme::allow_unstable`]; `--force`, for demonstrating instability only).
+    pub allow_unstable: bool,
+}
+
 /// Reads and validates the scenario file at `path` with `overrides` (`key.path=value`).
 pub fn load(path: &Path, overrides: &[String]) -> Result<Scenario, ScenarioError> {
+    load_with(path, overrides, LoadOptions::default())
+}
+
+/// [`load`] with options.
+pub fn load_with(path: &Path, overrides: &[String], options: LoadOptions) -> Result<Scenario, ScenarioError> {
     match std::fs::read(path) {
         Ok(bytes) => match String::from_utf8(bytes) {
-            Ok(text) => parse(&text, path, overrides),
+            Ok(text) => parse_with(&text, path, overrides, options),
             Err(e) => Err(ScenarioError {
                 file: path.to_path_buf(),
                 problems: vec![Problem {
@@ -162,7 +175,17 @@ pub fn load(path: &Path, overrides: &[String]) -> Result<Scenario, ScenarioError
 
 /// Validates scenario `text`; `path` names the file in messages and anchors relative paths.
 pub fn parse(text: &str, path: &Path, overrides: &[String]) -> Result<Scenario, ScenarioError> {
-    build::parse(text, path, overrides).map_err(|problems| ScenarioError {
+    parse_with(text, path, overrides, LoadOptions::default())
+}
+
+/// [`parse`] with options.
+pub fn parse_with(
+    text: &str,
+    path: &Path,
+    overrides: &[String],
+    options: LoadOptions,
+) -> Result<Scenario, ScenarioError> {
+    build::parse(text, path, overrides, options.allow_unstable).map_err(|problems| ScenarioError {
         file: path.to_path_buf(),
         problems,
     })
