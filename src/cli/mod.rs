@@ -2,8 +2,12 @@
 //! arguments, calls the library and prints. Errors carry their exit code.
 
 pub mod bench;
+pub mod compare;
+pub mod converge;
 pub mod example;
+pub mod gci;
 pub mod run;
+pub mod verify;
 
 use tinct::ops::limiter::Limiter;
 
