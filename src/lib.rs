@@ -43,5 +43,6 @@ pub mod run;
 pub mod scenario;
 pub mod solve;
 pub mod step;
+pub mod studies;
 
 pub use error::{ModelError, RunError};

@@ -25,6 +25,16 @@ enum Command {
     /// Throughput of the explicit step (million cell updates per second) on the shared
     /// benchmark problem, checked against its reference values first.
     Bench(cli::bench::BenchArgs),
+    /// Run a scenario once per convection scheme and compare each with the exact solution or a
+    /// refined reference; writes `<dir>/<name>/compare/`.
+    Compare(cli::compare::CompareArgs),
+    /// Run a scenario on refined grids and report observed orders, extrapolated values and the
+    /// grid-convergence index (Celik et al. 2008); writes `<dir>/<name>/converge/`.
+    Converge(cli::converge::ConvergeArgs),
+    /// Grid-convergence index of three values from any code (Celik et al. 2008).
+    Gci(cli::gci::GciArgs),
+    /// Run the built-in verification cases, one row per case with its published source.
+    Verify(cli::verify::VerifyArgs),
 }
 
 fn main() -> ExitCode {
@@ -33,6 +43,10 @@ fn main() -> ExitCode {
         Command::Check(a) => cli::check::main(a),
         Command::Example(a) => cli::example::main(a),
         Command::Bench(a) => cli::bench::main(a),
+        Command::Compare(a) => cli::compare::main(a),
+        Command::Converge(a) => cli::converge::main(a),
+        Command::Gci(a) => cli::gci::main(a),
+        Command::Verify(a) => cli::verify::main(a),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

@@ -3,8 +3,12 @@
 
 pub mod bench;
 pub mod check;
+pub mod compare;
+pub mod converge;
 pub mod example;
+pub mod gci;
 pub mod run;
+pub mod verify;
 
 use tinct::ops::limiter::Limiter;
 

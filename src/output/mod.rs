@@ -10,6 +10,7 @@
 //!   colour bar) for `tinct check`.
 //! - [`netcdf`]: CF-1.8 NetCDF-3 field files ([`FieldsWriter`], [`FieldMeta`],
 //!   [`FILL_VALUE`]), written record by record.
+//! - [`plot`]: study plots (a panel of equally scaled map tiles, line plots).
 //! - [`error`]: [`OutputError`], naming the file in every variant.
 //! - `text` (private): antialiased text drawing with the embedded DejaVu Sans.
 
@@ -19,6 +20,7 @@ pub mod error;
 pub mod frame;
 pub mod maps;
 pub mod netcdf;
+pub mod plot;
 mod text;
 
 pub use atomic::{write_atomic, write_atomic_with, AtomicFile};
