@@ -48,13 +48,30 @@ pub(crate) struct Consts {
 /// Marks a row whose interior cells (all but the first and last) do not share one flag byte.
 pub(crate) const MIXED: u8 = 0xFF;
 
-/// A compact operator: flags per cell plus [`Consts`], and per row the flag byte shared by
-/// all its interior cells ([`MIXED`] if none), so uniform rows run a select-free loop.
+/// Entries of the reciprocal-diagonal table: every value of the seven flag bits.
+pub(crate) const FLAG_VALUES: usize = 128;
+
+/// A compact operator: flags per cell plus [`Consts`], per row the flag byte shared by all its
+/// interior cells ([`MIXED`] if none), so uniform rows run a select-free loop, and the
+/// reciprocal diagonal of every flag value, so the smoother reads no per-cell diagonal array
+/// (on the fine level each entry is `1 / diag` of the stored operator, bit for bit).
 #[derive(Debug, Clone, PartialEq)]
 pub(crate) struct Compact {
     pub k: Consts,
     pub flags: Vec<u8>,
     pub rows: Vec<u8>,
+    pub inv: Box<[f64; FLAG_VALUES]>,
+}
+
+impl Consts {
+    /// `1 / diag(f)` for every flag value `f` (index = the flag byte).
+    pub fn inv_table(&self) -> Box<[f64; FLAG_VALUES]> {
+        let mut t = Box::new([0.0; FLAG_VALUES]);
+        for (f, v) in t.iter_mut().enumerate() {
+            *v = 1.0 / self.diag(f as u8);
+        }
+        t
+    }
 }
 
 impl Consts {
@@ -173,7 +190,12 @@ impl Compact {
                 }
             })
             .collect();
-        Some(Self { k, flags, rows })
+        Some(Self {
+            inv: k.inv_table(),
+            k,
+            flags,
+            rows,
+        })
     }
 }
 
@@ -305,14 +327,15 @@ pub(crate) fn residual_row_sq(k: &Consts, f: &[u8], xs: &[f64], x: &[f64], xn: &
 }
 
 /// One colour of a red-black Gauss–Seidel half-sweep on a row, out of place: cells with
-/// `i % 2 == start` get `(b + neighbours) * inv`, the others copy `x`. Rows have >= 3 cells.
+/// `i % 2 == start` get `(b + neighbours) / diag`, the others copy `x`. The reciprocal
+/// diagonal comes from the flag table `inv` (a scalar on uniform rows). Rows have >= 3 cells.
 #[allow(clippy::too_many_arguments)]
 #[inline(always)]
 pub(crate) fn relax_row(
     k: &Consts,
     u: u8,
     f: &[u8],
-    inv: &[f64],
+    inv: &[f64; FLAG_VALUES],
     b: &[f64],
     xs: &[f64],
     x: &[f64],
@@ -321,15 +344,15 @@ pub(crate) fn relax_row(
     start: usize,
 ) {
     let n = x.len();
-    let (f, inv, b, xs, xn, out) = (&f[..n], &inv[..n], &b[..n], &xs[..n], &xn[..n], &mut out[..n]);
+    let (f, b, xs, xn, out) = (&f[..n], &b[..n], &xs[..n], &xn[..n], &mut out[..n]);
     let l = n - 1;
-    let upd = |i: usize, xw: f64, xe: f64| (b[i] + k.nb(f[i], xw, xe, xs[i], xn[i])) * inv[i];
+    let iv = |g: u8| inv[usize::from(g) % FLAG_VALUES];
+    let upd = |i: usize, xw: f64, xe: f64| (b[i] + k.nb(f[i], xw, xe, xs[i], xn[i])) * iv(f[i]);
     out[0] = if start == 0 { upd(0, x[l], x[1]) } else { x[0] };
     {
         let m = n - 2;
-        let (f, inv, b, xw, xc, xe, xs, xn, out) = (
+        let (f, b, xw, xc, xe, xs, xn, out) = (
             &f[1..=m],
-            &inv[1..=m],
             &b[1..=m],
             &x[..m],
             &x[1..=m],
@@ -342,13 +365,14 @@ pub(crate) fn relax_row(
         let par = 1 - start;
         if u != MIXED {
             let (_, cw, ce, cs, cn) = k.coefs(u);
+            let d = iv(u);
             for i in 0..m {
-                let v = (b[i] + (cw * xw[i] + ce * xe[i] + cs * xs[i] + cn * xn[i])) * inv[i];
+                let v = (b[i] + (cw * xw[i] + ce * xe[i] + cs * xs[i] + cn * xn[i])) * d;
                 out[i] = if i & 1 == par { v } else { xc[i] };
             }
         } else {
             for i in 0..m {
-                let v = (b[i] + k.nb(f[i], xw[i], xe[i], xs[i], xn[i])) * inv[i];
+                let v = (b[i] + k.nb(f[i], xw[i], xe[i], xs[i], xn[i])) * iv(f[i]);
                 out[i] = if i & 1 == par { v } else { xc[i] };
             }
         }
@@ -357,12 +381,28 @@ pub(crate) fn relax_row(
 }
 
 /// The first red-black half-sweep from a zero guess on a row: cells with `i % 2 == start` get
-/// `b * inv`, the others 0.
+/// `b / diag` (from the flag table), the others 0. Rows have >= 3 cells.
 #[inline(always)]
-pub(crate) fn first_colour_row(inv: &[f64], b: &[f64], out: &mut [f64], start: usize) {
+pub(crate) fn first_colour_row(u: u8, f: &[u8], inv: &[f64; FLAG_VALUES], b: &[f64], out: &mut [f64], start: usize) {
     let n = out.len();
-    let (inv, b) = (&inv[..n], &b[..n]);
-    for i in 0..n {
-        out[i] = if i & 1 == start { b[i] * inv[i] } else { 0.0 };
+    let (f, b) = (&f[..n], &b[..n]);
+    let iv = |g: u8| inv[usize::from(g) % FLAG_VALUES];
+    let l = n - 1;
+    out[0] = if start == 0 { b[0] * iv(f[0]) } else { 0.0 };
+    {
+        let m = n - 2;
+        let (f, b, out) = (&f[1..=m], &b[1..=m], &mut out[1..=m]);
+        let par = 1 - start;
+        if u != MIXED {
+            let d = iv(u);
+            for i in 0..m {
+                out[i] = if i & 1 == par { b[i] * d } else { 0.0 };
+            }
+        } else {
+            for i in 0..m {
+                out[i] = if i & 1 == par { b[i] * iv(f[i]) } else { 0.0 };
+            }
+        }
     }
+    out[l] = if l % 2 == start { b[l] * iv(f[l]) } else { 0.0 };
 }
