@@ -1,13 +1,28 @@
 //! Prints the implicit-diffusion solver benchmark (`tinct::solve::bench`): backward Euler at
 //! diffusion number 10 on 1024^2 and 2048^2 cells, zero-flux sides, relative residual 1e-10.
 //!
-//! `cargo run --release --example solver_bench [steps] [sizes...]`
+//! `cargo run --release --example solver_bench [steps] [sizes...] [sweeps=K]` (`sweeps=K`:
+//! K pre- and post-sweeps of the multigrid smoother instead of the default).
 
 use tinct::solve::bench::implicit_diffusion;
 use tinct::solve::SolverParams;
 
 fn main() {
-    let args: Vec<String> = std::env::args().skip(1).collect();
+    let mut params = SolverParams::default();
+    let mut args: Vec<String> = Vec::new();
+    for a in std::env::args().skip(1) {
+        match a.strip_prefix("sweeps=").map(str::parse::<usize>) {
+            Some(Ok(k)) => {
+                params.multigrid.pre_sweeps = k;
+                params.multigrid.post_sweeps = k;
+            }
+            Some(Err(e)) => {
+                eprintln!("bad {a}: {e}");
+                std::process::exit(2);
+            }
+            None => args.push(a),
+        }
+    }
     let steps: usize = args.first().and_then(|s| s.parse().ok()).unwrap_or(10);
     let sizes: Vec<usize> = if args.len() > 1 {
         args[1..].iter().filter_map(|s| s.parse().ok()).collect()
@@ -16,7 +31,7 @@ fn main() {
     };
     let mut medians = Vec::new();
     for &n in &sizes {
-        match implicit_diffusion(n, steps, 10.0, SolverParams::default()) {
+        match implicit_diffusion(n, steps, 10.0, params) {
             Ok(r) => {
                 let worst = r.relative_residuals.iter().cloned().fold(0.0, f64::max);
                 println!(
