@@ -33,33 +33,6 @@ pub struct VerifyRow {
     pub note: String,
 }
 
-/// The complementary error function: the power series of erf (Abramowitz & Stegun 1964,
-/// 7.1.5) below 2, the continued fraction of erfc (A&S 7.1.14) from 2 on; about 1e-12 relative.
-pub fn erfc(x: f64) -> f64 {
-    if x < 0.0 {
-        return 2.0 - erfc(-x);
-    }
-    if x < 2.0 {
-        let (mut term, mut sum, x2) = (x, x, x * x);
-        for n in 1..200 {
-            term *= -x2 / n as f64;
-            let add = term / (2 * n + 1) as f64;
-            sum += add;
-            if add.abs() < 1e-17 * sum.abs() {
-                break;
-            }
-        }
-        1.0 - 2.0 / PI.sqrt() * sum
-    } else {
-        // erfc(x) = exp(-x^2)/sqrt(pi) * 1/(x + (1/2)/(x + 1/(x + (3/2)/(x + 2/(x + ...))))).
-        let mut f = x;
-        for k in (1..400).rev() {
-            f = x + (k as f64 / 2.0) / f;
-        }
-        (-x * x).exp() / PI.sqrt() / f
-    }
-}
-
 fn base_spec(grid: Grid, flow: FlowKind, boundaries: Boundaries) -> ModelSpec {
     ModelSpec {
         grid,
@@ -310,7 +283,7 @@ fn ogata_banks() -> VerifyRow {
     let (u, d, t, len, n): (f64, f64, f64, f64, usize) = (0.1, 0.5, 400.0, 100.0, 400);
     let exact = |x: f64| {
         let s = 2.0 * (d * t).sqrt();
-        0.5 * (erfc((x - u * t) / s) + (u * x / d).exp() * erfc((x + u * t) / s))
+        0.5 * (libm::erfc((x - u * t) / s) + (u * x / d).exp() * libm::erfc((x + u * t) / s))
     };
     let res = (|| {
         let dx = len / n as f64;
@@ -476,17 +449,4 @@ pub fn verify() -> Vec<VerifyRow> {
         || vec![swirl()],
     ];
     cases.par_iter().flat_map(|c| c()).collect()
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn erfc_matches_the_libm_port() {
-        for &x in &[-2.0, -0.3, 0.0, 0.5, 1.0, 2.0, 2.99, 3.0, 4.5, 6.0, 10.0] {
-            let (a, b) = (erfc(x), libm::erfc(x));
-            assert!(((a - b) / b).abs() < 1e-11, "erfc({x}) = {a:e} vs {b:e}");
-        }
-    }
 }
