@@ -14,13 +14,13 @@ use image::RgbImage;
 use rayon::prelude::*;
 
 use super::colour::{normalise, ColourScale, Ramp, RampLut, LAND_RGB};
+use super::draw::{outline_ink as draw_rect_outline, put, INK};
 use super::text::{draw_text, text_width};
 use super::{write_atomic, OutputError};
 
 /// Background colour of the frame outside the map.
 const BACKGROUND: [u8; 3] = [255, 255, 255];
 /// Colour of text, ticks and outlines.
-const INK: [u8; 3] = [28, 28, 30];
 /// Side margin in pixels.
 const MARGIN: u32 = 24;
 /// Height of the title band above the map.
@@ -507,25 +507,6 @@ fn draw_map(img: &mut RgbImage, layout: &FrameLayout, spec: &FrameSpec, lut: &Ra
             px.copy_from_slice(&rgb);
         }
     });
-}
-
-fn put(img: &mut RgbImage, x: i64, y: i64, rgb: [u8; 3]) {
-    if x >= 0 && y >= 0 && x < i64::from(img.width()) && y < i64::from(img.height()) {
-        img.put_pixel(x as u32, y as u32, image::Rgb(rgb));
-    }
-}
-
-/// One-pixel outline of the rectangle with top-left `(x, y)` and size `w x h`.
-fn draw_rect_outline(img: &mut RgbImage, x: i64, y: i64, w: u32, h: u32) {
-    let (w, h) = (i64::from(w), i64::from(h));
-    for dx in 0..w {
-        put(img, x + dx, y, INK);
-        put(img, x + dx, y + h - 1, INK);
-    }
-    for dy in 0..h {
-        put(img, x, y + dy, INK);
-        put(img, x + w - 1, y + dy, INK);
-    }
 }
 
 /// Renders `spec` and writes it atomically as a PNG file at `path`.

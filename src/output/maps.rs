@@ -15,12 +15,12 @@ use std::path::Path;
 use image::RgbImage;
 
 use super::colour::{normalise, ColourScale, Ramp, RampLut, LAND_RGB};
+use super::draw::{outline_ink as outline, put, INK};
 use super::frame::{frame_layout, FrameLayout};
 use super::text::{draw_text, text_width};
 use super::{write_atomic, OutputError};
 
 const BACKGROUND: [u8; 3] = [255, 255, 255];
-const INK: [u8; 3] = [28, 28, 30];
 const TITLE_PX: f32 = 20.0;
 const LABEL_PX: f32 = 15.0;
 const BAR_INSET: u32 = 40;
@@ -107,24 +107,6 @@ fn paint(img: &mut RgbImage, l: &FrameLayout, nx: usize, ny: usize, colour: impl
         }
     }
     outline(img, l.map_x as i64 - 1, l.map_y as i64 - 1, l.map_w + 2, l.map_h + 2);
-}
-
-fn put(img: &mut RgbImage, x: i64, y: i64, rgb: [u8; 3]) {
-    if x >= 0 && y >= 0 && x < i64::from(img.width()) && y < i64::from(img.height()) {
-        img.put_pixel(x as u32, y as u32, image::Rgb(rgb));
-    }
-}
-
-fn outline(img: &mut RgbImage, x: i64, y: i64, w: u32, h: u32) {
-    let (w, h) = (i64::from(w), i64::from(h));
-    for d in 0..w {
-        put(img, x + d, y, INK);
-        put(img, x + d, y + h - 1, INK);
-    }
-    for d in 0..h {
-        put(img, x, y + d, INK);
-        put(img, x + w - 1, y + d, INK);
-    }
 }
 
 fn title(img: &mut RgbImage, text: &str) {

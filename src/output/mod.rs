@@ -16,6 +16,7 @@
 
 pub mod atomic;
 pub mod colour;
+mod draw;
 pub mod error;
 pub mod frame;
 pub mod maps;

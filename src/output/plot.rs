@@ -10,11 +10,11 @@ use std::path::Path;
 use image::{Rgb, RgbImage};
 
 use super::colour::{normalise, ColourScale, Ramp, RampLut, LAND_RGB};
+use super::draw::{outline, put, INK};
 use super::text::{draw_text, text_width};
 use super::{write_atomic, OutputError};
 
 const BACKGROUND: [u8; 3] = [255, 255, 255];
-const INK: [u8; 3] = [28, 28, 30];
 const GRID_RGB: [u8; 3] = [225, 225, 228];
 /// Line colours, in order of use (the project's own choice of distinct hues).
 const PALETTE: [[u8; 3]; 8] = [
@@ -98,23 +98,6 @@ pub fn panel_layout(n: usize, nx: usize, ny: usize) -> PanelLayout {
         tile_w,
         tile_h,
         origins,
-    }
-}
-
-fn put(img: &mut RgbImage, x: i64, y: i64, rgb: [u8; 3]) {
-    if x >= 0 && y >= 0 && x < i64::from(img.width()) && y < i64::from(img.height()) {
-        img.put_pixel(x as u32, y as u32, Rgb(rgb));
-    }
-}
-
-fn outline(img: &mut RgbImage, x: i64, y: i64, w: i64, h: i64, rgb: [u8; 3]) {
-    for d in 0..w {
-        put(img, x + d, y, rgb);
-        put(img, x + d, y + h - 1, rgb);
-    }
-    for d in 0..h {
-        put(img, x, y + d, rgb);
-        put(img, x + w - 1, y + d, rgb);
     }
 }
 
