@@ -4,8 +4,10 @@
 //! and the modified-equation numerical diffusivity of upwind; plus the run's advice and its
 //! measured effective diffusivity in `summary.json`.
 
+mod common;
+
+use common::{root, tinct};
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
 use tinct::diagnostics::regime::{analyse, cell_maps, Regime};
 use tinct::flow::FlowSpec;
 use tinct::grid::{Grid, Mask};
@@ -14,20 +16,8 @@ use tinct::ops::boundary::{Boundaries, SideKind};
 use tinct::ops::limiter::Limiter;
 use tinct::step::{Scheme, Simulation, StepLimits};
 
-fn tinct(args: &[&str], cwd: &Path) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_tinct"))
-        .args(args)
-        .current_dir(cwd)
-        .output()
-        .expect("binary runs")
-}
-
 fn scenario(name: &str) -> String {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
-        .join("tests/check")
-        .join(name)
-        .to_string_lossy()
-        .into_owned()
+    root().join("tests/check").join(name).to_string_lossy().into_owned()
 }
 
 fn json(path: &Path) -> serde_json::Value {

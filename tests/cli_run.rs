@@ -2,20 +2,10 @@
 //! writes every output file with the DESIGN §5 contents; every broken scenario exits 2, names
 //! its key and creates nothing; `--set` overrides are checked like file values.
 
+mod common;
+
+use common::{root, tinct};
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
-
-fn tinct(args: &[&str], cwd: &Path) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_tinct"))
-        .args(args)
-        .current_dir(cwd)
-        .output()
-        .expect("binary runs")
-}
-
-fn root() -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
-}
 
 fn shipped() -> Vec<PathBuf> {
     let mut v: Vec<PathBuf> = std::fs::read_dir(root().join("scenarios"))

@@ -2,20 +2,11 @@
 //! Celik et al. (2008), `tinct compare` on the rotating cone (Zalesak 1979; TVD bounds of Sweby
 //! 1984), `tinct converge` on the Gaussian puff (exact: Crank 1975) and `tinct verify`.
 
-use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
+mod common;
 
-fn tinct(args: &[&str], cwd: &Path) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_tinct"))
-        .args(args)
-        .current_dir(cwd)
-        .output()
-        .expect("binary runs")
-}
-
-fn root() -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
-}
+use common::{root, tinct};
+use std::path::Path;
+use std::process::Output;
 
 fn text(o: &Output) -> String {
     format!(

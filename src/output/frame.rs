@@ -6,7 +6,7 @@
 //! every frame of a run has the same size), the map centred below it, then a
 //! strip with the colour bar, its tick labels and one caption line holding
 //! `tracer [units]` on the left and `t = ...` on the right. Image width and
-//! height are even, which video encoders prefer.
+//! height are even, so frame sequences can be assembled into animations by common encoders.
 
 use std::path::{Path, PathBuf};
 

@@ -3,6 +3,8 @@
 #![allow(dead_code)]
 
 use std::ops::ControlFlow;
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
 use tinct::flow::{FlowKind, FlowSpec};
 use tinct::grid::{Grid, Mask};
 use tinct::model::{Model, ModelSpec};
@@ -80,4 +82,18 @@ pub fn island(grid: &Grid, x: (f64, f64), y: (f64, f64)) -> Mask {
     Mask::all_water(grid)
         .with_land(grid, |cx, cy| cx > x.0 && cx < x.1 && cy > y.0 && cy < y.1)
         .expect("some water")
+}
+
+/// Runs the real `tinct` binary with `args` in the folder `cwd`.
+pub fn tinct(args: &[&str], cwd: &Path) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_tinct"))
+        .args(args)
+        .current_dir(cwd)
+        .output()
+        .expect("binary runs")
+}
+
+/// The project's root folder.
+pub fn root() -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
 }
