@@ -27,6 +27,7 @@
 // `!(x <= limit)` is deliberate: it is true for NaN, which a `>` test would miss; and
 // `min(..).max(0.0)` chains are kept over `clamp`, which propagates NaN instead of mapping it.
 #![allow(clippy::neg_cmp_op_on_partial_ord, clippy::manual_clamp)]
+#![warn(missing_docs)]
 
 pub mod bench;
 pub mod budget;
