@@ -7,6 +7,18 @@ mod common;
 use common::{root, tinct};
 use std::path::{Path, PathBuf};
 
+/// `tinct run SCENARIO --out results [--quiet] --set KEY=VALUE ...` in `dir`.
+fn run_with(dir: &Path, scenario: &str, quiet: bool, sets: &[&str]) -> std::process::Output {
+    let mut args = vec!["run", scenario, "--out", "results"];
+    if quiet {
+        args.push("--quiet");
+    }
+    for s in sets {
+        args.extend(["--set", s]);
+    }
+    tinct(&args, dir)
+}
+
 fn shipped() -> Vec<PathBuf> {
     let mut v: Vec<PathBuf> = std::fs::read_dir(root().join("scenarios"))
         .unwrap()
@@ -200,30 +212,18 @@ fn set_overrides_are_validated_like_file_values() {
         ("tracer.diffusivity=nan", "tracer.diffusivity"),
         ("run.ends=10", "run.ends"),
     ] {
-        let out = tinct(&["run", cone, "--out", "results", "--quiet", "--set", set], tmp.path());
+        let out = run_with(tmp.path(), cone, true, &[set]);
         let stderr = String::from_utf8_lossy(&out.stderr);
         assert_eq!(out.status.code(), Some(2), "--set {set}: {stderr}");
         assert!(stderr.contains(key), "--set {set}: {stderr}");
         assert!(!tmp.path().join("results").exists());
     }
     // A good override changes the run, and the scenario as run records it.
-    let out = tinct(
-        &[
-            "run",
-            cone,
-            "--out",
-            "results",
-            "--quiet",
-            "--set",
-            "scheme.convection=superbee",
-            "--set",
-            "run.frames=2",
-            "--set",
-            "grid.nx=64",
-            "--set",
-            "grid.ny=64",
-        ],
+    let out = run_with(
         tmp.path(),
+        cone,
+        true,
+        &["scheme.convection=superbee", "run.frames=2", "grid.nx=64", "grid.ny=64"],
     );
     assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
     let resolved: toml::Table =
@@ -239,23 +239,16 @@ fn set_overrides_are_validated_like_file_values() {
 fn a_diverging_run_exits_1_with_step_time_cell_and_keeps_its_logs() {
     let tmp = tempfile::tempdir().unwrap();
     let cone = root().join("scenarios/rotating-cone.toml");
-    let out = tinct(
+    let out = run_with(
+        tmp.path(),
+        cone.to_str().unwrap(),
+        true,
         &[
-            "run",
-            cone.to_str().unwrap(),
-            "--out",
-            "results",
-            "--quiet",
-            "--set",
             "scheme.convection=central",
-            "--set",
             "scheme.stages=1",
-            "--set",
             "grid.nx=64",
-            "--set",
             "grid.ny=64",
         ],
-        tmp.path(),
     );
     let stderr = String::from_utf8_lossy(&out.stderr);
     assert_eq!(out.status.code(), Some(1), "{stderr}");
@@ -274,18 +267,11 @@ fn a_diverging_run_exits_1_with_step_time_cell_and_keeps_its_logs() {
 fn crank_nicolson_at_a_large_diffusion_number_warns_on_stderr_and_in_the_summary() {
     let tmp = tempfile::tempdir().unwrap();
     let puff = root().join("scenarios/gaussian-puff.toml");
-    let out = tinct(
-        &[
-            "run",
-            puff.to_str().unwrap(),
-            "--out",
-            "results",
-            "--set",
-            "scheme.time=crank_nicolson",
-            "--set",
-            "run.frames=2",
-        ],
+    let out = run_with(
         tmp.path(),
+        puff.to_str().unwrap(),
+        false,
+        &["scheme.time=crank_nicolson", "run.frames=2"],
     );
     let stderr = String::from_utf8_lossy(&out.stderr);
     assert!(out.status.success(), "{stderr}");
@@ -304,19 +290,11 @@ fn crank_nicolson_at_a_large_diffusion_number_warns_on_stderr_and_in_the_summary
         .any(|w| w.as_str().unwrap().contains("rings")));
     assert!(summary["solver_iterations"].as_u64().unwrap() > 0);
     // With --quiet nothing but errors reaches stderr.
-    let out = tinct(
-        &[
-            "run",
-            puff.to_str().unwrap(),
-            "--out",
-            "results",
-            "--quiet",
-            "--set",
-            "scheme.time=crank_nicolson",
-            "--set",
-            "run.frames=2",
-        ],
+    let out = run_with(
         tmp.path(),
+        puff.to_str().unwrap(),
+        true,
+        &["scheme.time=crank_nicolson", "run.frames=2"],
     );
     assert!(
         out.status.success() && out.stderr.is_empty(),
@@ -329,21 +307,15 @@ fn crank_nicolson_at_a_large_diffusion_number_warns_on_stderr_and_in_the_summary
 fn a_solver_that_cannot_converge_stops_the_run_with_exit_1_the_step_and_the_residual() {
     let tmp = tempfile::tempdir().unwrap();
     let puff = root().join("scenarios/gaussian-puff.toml");
-    let out = tinct(
+    let out = run_with(
+        tmp.path(),
+        puff.to_str().unwrap(),
+        true,
         &[
-            "run",
-            puff.to_str().unwrap(),
-            "--out",
-            "results",
-            "--quiet",
-            "--set",
             "scheme.time=implicit",
-            "--set",
             "scheme.max_iterations=1",
-            "--set",
             "scheme.tolerance=1e-15",
         ],
-        tmp.path(),
     );
     let stderr = String::from_utf8_lossy(&out.stderr);
     assert_eq!(out.status.code(), Some(1), "{stderr}");

@@ -43,18 +43,17 @@ pub enum Limiter {
 }
 
 impl Limiter {
-    /// Every scheme in Sweby's flux-limiter form (psi of r), in the order of DESIGN §2.
-    pub const ALL: [Limiter; 9] = [
-        Limiter::Upwind,
-        Limiter::Central,
-        Limiter::Quick,
-        Limiter::Minmod,
-        Limiter::VanLeer,
-        Limiter::VanAlbada,
-        Limiter::Mc,
-        Limiter::Superbee,
-        Limiter::Koren,
-    ];
+    /// Every scheme in Sweby's flux-limiter form (psi of r), in the order of DESIGN §2: the
+    /// first nine of [`Limiter::EVERY`].
+    pub const ALL: [Limiter; 9] = {
+        let mut all = [Limiter::Upwind; 9];
+        let mut k = 0;
+        while k < 9 {
+            all[k] = Self::EVERY[k];
+            k += 1;
+        }
+        all
+    };
 
     /// The schemes switched by the local cell Peclet number (coefficient form).
     pub const PECLET_SWITCHED: [Limiter; 2] = [Limiter::Hybrid, Limiter::PowerLaw];

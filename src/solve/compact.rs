@@ -415,6 +415,27 @@ pub(crate) fn first_colour_row(u: u8, f: &[u8], inv: &[f64; FLAG_VALUES], b: &[f
 /// for bit; they return how many leading cells they did (a multiple of 8), the caller does the
 /// rest. Without AVX-512 at compile time they do nothing.
 mod simd {
+    /// `cw xw + ce xe + cs xs + cn xn` at cells `i..i + 8` of `r = [b, xw, xc, xe, xs, xn]`,
+    /// summed in the scalar loops' order.
+    ///
+    /// # Safety
+    /// AVX-512F must be available and `i + 8` must not exceed the length of `r[1]`, `r[3]`,
+    /// `r[4]` and `r[5]`.
+    #[cfg(all(target_arch = "x86_64", target_feature = "avx512f"))]
+    #[inline(always)]
+    unsafe fn neighbours(c: [std::arch::x86_64::__m512d; 4], r: &[&[f64]; 6], i: usize) -> std::arch::x86_64::__m512d {
+        use std::arch::x86_64::*;
+        let [cw, ce, cs, cn] = c;
+        let ld = |v: &[f64]| _mm512_loadu_pd(v.as_ptr().add(i));
+        _mm512_add_pd(
+            _mm512_add_pd(
+                _mm512_add_pd(_mm512_mul_pd(cw, ld(r[1])), _mm512_mul_pd(ce, ld(r[3]))),
+                _mm512_mul_pd(cs, ld(r[4])),
+            ),
+            _mm512_mul_pd(cn, ld(r[5])),
+        )
+    }
+
     /// `c = [cw, ce, cs, cn, d]`; `r = [b, xw, xc, xe, xs, xn]`, each at least `out.len()`
     /// long. Cell `i` of `out` gets `(b + cw xw + ce xe + cs xs + cn xn) d` when
     /// `i % 2 == par`, else `xc`.
@@ -436,13 +457,7 @@ mod simd {
                 // every slice read or written.
                 unsafe {
                     let ld = |v: &[f64]| _mm512_loadu_pd(v.as_ptr().add(i));
-                    let nb = _mm512_add_pd(
-                        _mm512_add_pd(
-                            _mm512_add_pd(_mm512_mul_pd(cw, ld(r[1])), _mm512_mul_pd(ce, ld(r[3]))),
-                            _mm512_mul_pd(cs, ld(r[4])),
-                        ),
-                        _mm512_mul_pd(cn, ld(r[5])),
-                    );
+                    let nb = neighbours([cw, ce, cs, cn], &r, i);
                     let v = _mm512_mul_pd(_mm512_add_pd(ld(r[0]), nb), d);
                     _mm512_storeu_pd(out.as_mut_ptr().add(i), _mm512_mask_blend_pd(mask, ld(r[2]), v));
                 }
@@ -476,13 +491,7 @@ mod simd {
                 // every slice read or written.
                 unsafe {
                     let ld = |v: &[f64]| _mm512_loadu_pd(v.as_ptr().add(i));
-                    let nb = _mm512_add_pd(
-                        _mm512_add_pd(
-                            _mm512_add_pd(_mm512_mul_pd(cw, ld(r[1])), _mm512_mul_pd(ce, ld(r[3]))),
-                            _mm512_mul_pd(cs, ld(r[4])),
-                        ),
-                        _mm512_mul_pd(cn, ld(r[5])),
-                    );
+                    let nb = neighbours([cw, ce, cs, cn], &r, i);
                     let ax = _mm512_sub_pd(_mm512_mul_pd(d, ld(r[2])), nb);
                     _mm512_storeu_pd(out.as_mut_ptr().add(i), _mm512_sub_pd(ld(r[0]), ax));
                 }

@@ -1134,34 +1134,10 @@ fn galerkin(f: &Stencil5, c: &mut Stencil5, sx: u32, sy: u32, scale: f64) {
             let iw = if i > 0 { i - 1 } else { nx - 1 };
             let ie = if i + 1 < nx { i + 1 } else { 0 };
             // West and east: the neighbour's aggregate is either this one or the one beside.
-            if f.aw[k] != 0.0 {
-                if iw >> sx == ic {
-                    c.diag[kc] -= f.aw[k];
-                } else {
-                    c.aw[kc] += f.aw[k];
-                }
-            }
-            if f.ae[k] != 0.0 {
-                if ie >> sx == ic {
-                    c.diag[kc] -= f.ae[k];
-                } else {
-                    c.ae[kc] += f.ae[k];
-                }
-            }
-            if f.as_[k] != 0.0 {
-                if js >> sy == jc {
-                    c.diag[kc] -= f.as_[k];
-                } else {
-                    c.as_[kc] += f.as_[k];
-                }
-            }
-            if f.an[k] != 0.0 {
-                if jn >> sy == jc {
-                    c.diag[kc] -= f.an[k];
-                } else {
-                    c.an[kc] += f.an[k];
-                }
-            }
+            couple(f.aw[k], iw >> sx == ic, &mut c.diag[kc], &mut c.aw[kc]);
+            couple(f.ae[k], ie >> sx == ic, &mut c.diag[kc], &mut c.ae[kc]);
+            couple(f.as_[k], js >> sy == jc, &mut c.diag[kc], &mut c.as_[kc]);
+            couple(f.an[k], jn >> sy == jc, &mut c.diag[kc], &mut c.an[kc]);
         }
     }
     for kc in 0..c.cells() {
@@ -1174,6 +1150,19 @@ fn galerkin(f: &Stencil5, c: &mut Stencil5, sx: u32, sy: u32, scale: f64) {
             c.ae[kc] *= scale;
             c.as_[kc] *= scale;
             c.an[kc] *= scale;
+        }
+    }
+}
+
+/// Galerkin coupling of a fine face into the coarse operator: a face inside one aggregate
+/// cancels on the coarse diagonal, a face between aggregates adds to the coarse coupling.
+#[inline]
+fn couple(a: f64, same_aggregate: bool, diag: &mut f64, off: &mut f64) {
+    if a != 0.0 {
+        if same_aggregate {
+            *diag -= a;
+        } else {
+            *off += a;
         }
     }
 }
