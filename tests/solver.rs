@@ -415,6 +415,8 @@ fn not_converged_is_typed() {
     let params = SolverParams {
         rtol: 1e-15,
         max_iter: 1,
+        // Multigrid-preconditioned CG (the exact transform solver would qualify here).
+        method: Method::Cg,
         ..Default::default()
     };
     let mut rng = Rng(4);
@@ -604,4 +606,56 @@ fn set_rtol_between_solves() {
         assert!(matches!(solver.set_rtol(bad), Err(SolveError::InvalidParameter { .. })));
     }
     assert_eq!(solver.rtol(), 1e-11);
+}
+
+/// The exact transform solver (chosen by `Method::Auto` for uniform diffusion on open water with
+/// closed or fixed sides in pairs) agrees with multigrid CG on the same systems, reaches a
+/// residual at round-off level, and is refused for operators it cannot diagonalise (common
+/// practice: fast Poisson solvers apply to separable constant-coefficient problems only).
+#[test]
+fn transform_solver_matches_multigrid() {
+    let grid = Grid::new(96, 70, 2.0, 1.5, 0.0, 0.0).unwrap();
+    let water = Mask::all_water(&grid);
+    for sides in [Sides::closed(), Sides::uniform(SideCoupling::Dirichlet)] {
+        let a = Stencil5::diffusion(&grid, &water, sides, 40.0, 9.0).unwrap();
+        let b = Rng(31).vec(a.cells());
+        let mut xt = vec![0.0; a.cells()];
+        let mut auto = Solver::new(&a, SolverParams::default()).unwrap();
+        assert_eq!(auto.method(), Method::Transform);
+        let st = auto.solve(&a, &b, &mut xt).unwrap();
+        assert_eq!((st.method, st.iterations), (Method::Transform, 0));
+        let rel = true_rel_residual(&a, &b, &xt);
+        assert!(rel < 1e-13, "{sides:?}: {rel:e}");
+        let params = SolverParams {
+            method: Method::Cg,
+            rtol: 1e-12,
+            ..SolverParams::default()
+        };
+        let mut xc = vec![0.0; a.cells()];
+        let sc = Solver::new(&a, params).unwrap().solve(&a, &b, &mut xc).unwrap();
+        assert!(sc.iterations > 0);
+        // ||x - x*|| <= cond(A) ||r|| / ||b|| ||x*||, cond(A) <= 1 + 8 * 40 / 4 = 81.
+        let diff: Vec<f64> = xt.iter().zip(&xc).map(|(p, q)| p - q).collect();
+        assert!(norm(&diff) <= 81.0 * 1e-12 * norm(&xt), "{sides:?}");
+    }
+    let half = Sides {
+        west: SideCoupling::Dirichlet,
+        ..Sides::closed()
+    };
+    for (mask, sides) in [
+        (islands(&grid), Sides::closed()),
+        (water.clone(), Sides::periodic()),
+        (water, half),
+    ] {
+        let a = Stencil5::diffusion(&grid, &mask, sides, 40.0, 9.0).unwrap();
+        assert_ne!(
+            Solver::new(&a, SolverParams::default()).unwrap().method(),
+            Method::Transform
+        );
+        let only = SolverParams {
+            method: Method::Transform,
+            ..SolverParams::default()
+        };
+        assert!(matches!(Solver::new(&a, only), Err(SolveError::InvalidOperator(_))));
+    }
 }

@@ -108,40 +108,52 @@ pub fn main(a: BenchArgs) -> Result<(), Failure> {
 }
 
 /// The implicit diffusion step: median milliseconds per step, iterations and set-up per size,
-/// and the time ratio between consecutive sizes.
+/// and the time ratio between consecutive sizes, for the solver `Method::Auto` picks on this
+/// problem (the exact transform solver) and for multigrid-preconditioned conjugate gradients
+/// (what runs with land or periodic sides use).
 fn implicit_bench(sizes: &[usize], steps: usize) -> Result<(), Failure> {
     use tinct::solve::bench::implicit_diffusion;
-    use tinct::solve::SolverParams;
+    use tinct::solve::{Method, SolverParams};
     println!(
         "implicit backward-Euler diffusion, diffusion number 10, zero-flux sides, rtol 1e-10; {} thread(s)",
         rayon::current_num_threads()
     );
     println!(
-        "{:>6} {:>12} {:>10} {:>10} {:>11} {:>14}",
-        "N", "ms/step", "min", "max", "iterations", "setup ms"
+        "{:>14} {:>6} {:>12} {:>10} {:>10} {:>11} {:>14}",
+        "solver", "N", "ms/step", "min", "max", "iterations", "setup ms"
     );
-    let mut prev: Option<(usize, f64)> = None;
-    for &n in sizes {
-        if n < 16 {
-            return Err(bad_input(format!("--sizes: {n} is too small (at least 16)")));
+    for method in [Method::Auto, Method::Cg] {
+        let params = SolverParams {
+            method,
+            ..SolverParams::default()
+        };
+        let mut prev: Option<(usize, f64)> = None;
+        for &n in sizes {
+            if n < 16 {
+                return Err(bad_input(format!("--sizes: {n} is too small (at least 16)")));
+            }
+            let r = implicit_diffusion(n, steps.max(1), 10.0, params).map_err(|e| failed(e.to_string()))?;
+            let ms = |v: f64| 1e3 * v;
+            let lo = r.seconds.iter().cloned().fold(f64::INFINITY, f64::min);
+            let hi = r.seconds.iter().cloned().fold(0.0, f64::max);
+            println!(
+                "{:>14} {n:>6} {:>12.2} {:>10.2} {:>10.2} {:>11.1} {:>14.1}",
+                r.method.name(),
+                ms(r.median_seconds()),
+                ms(lo),
+                ms(hi),
+                r.median_iterations(),
+                ms(r.setup_seconds)
+            );
+            if let Some((n0, t0)) = prev {
+                println!(
+                    "{:>14} time ratio N = {n} / N = {n0}: {:.2}",
+                    "",
+                    r.median_seconds() / t0
+                );
+            }
+            prev = Some((n, r.median_seconds()));
         }
-        let r =
-            implicit_diffusion(n, steps.max(1), 10.0, SolverParams::default()).map_err(|e| failed(e.to_string()))?;
-        let ms = |v: f64| 1e3 * v;
-        let lo = r.seconds.iter().cloned().fold(f64::INFINITY, f64::min);
-        let hi = r.seconds.iter().cloned().fold(0.0, f64::max);
-        println!(
-            "{n:>6} {:>12.2} {:>10.2} {:>10.2} {:>11.1} {:>14.1}",
-            ms(r.median_seconds()),
-            ms(lo),
-            ms(hi),
-            r.median_iterations(),
-            ms(r.setup_seconds)
-        );
-        if let Some((n0, t0)) = prev {
-            println!("       time ratio N = {n} / N = {n0}: {:.2}", r.median_seconds() / t0);
-        }
-        prev = Some((n, r.median_seconds()));
     }
     Ok(())
 }

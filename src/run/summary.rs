@@ -29,6 +29,9 @@ pub struct SchemeFacts {
     pub courant: f64,
     /// The fixed step, if one was given.
     pub dt: Option<f64>,
+    /// Linear solver of the implicit steps: `transform` (exact, by fast cosine/sine
+    /// transforms), `multigrid_cg` or `multigrid_bicgstab`; null for explicit runs.
+    pub linear_solver: Option<String>,
 }
 
 /// The plume's effective diffusivity, measured from the growth of its second moments between
@@ -314,6 +317,7 @@ impl RunSummary {
                 tolerance: scn.scheme.time.is_implicit().then_some(scn.scheme.tolerance),
                 courant: scn.scheme.courant,
                 dt: scn.scheme.dt,
+                linear_solver: sim.linear_solver().map(|m| m.name().to_string()),
             },
             frames,
             solver_iterations: iterations.0,

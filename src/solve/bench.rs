@@ -2,8 +2,8 @@
 //! N by N cells, diffusion number d = K dt / h^2, zero-flux sides, solved to a relative
 //! residual of 1e-10. The first right-hand side is the peers' Gaussian hill plus cone
 //! (`../shared/peers/explicit-step`, README §1); each later step uses the previous solution
-//! as both right-hand side and initial guess. Only the solves are timed; assembly plus solver
-//! set-up is reported separately. Nothing here prints; callers report.
+//! as both right-hand side and initial guess (the transform solver, a direct method, ignores
+//! the guess). Only the solves are timed; assembly plus solver set-up is reported separately. Nothing here prints; callers report.
 
 use super::{Sides, SolveError, Solver, SolverParams, Stencil5};
 use crate::grid::{Grid, Mask};
@@ -20,6 +20,8 @@ pub struct DiffusionBench {
     pub threads: usize,
     /// Multigrid levels.
     pub levels: usize,
+    /// The method the solver ran (after resolving [`super::Method::Auto`]).
+    pub method: super::Method,
     /// Seconds for assembly plus solver set-up.
     pub setup_seconds: f64,
     /// Seconds of each step's solve.
@@ -90,6 +92,7 @@ pub fn implicit_diffusion(n: usize, steps: usize, d: f64, params: SolverParams) 
         d,
         threads: rayon::current_num_threads(),
         levels: solver.multigrid().levels(),
+        method: solver.method(),
         setup_seconds,
         seconds: Vec::with_capacity(steps),
         iterations: Vec::with_capacity(steps),

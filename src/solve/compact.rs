@@ -283,9 +283,9 @@ pub(crate) fn residual_row(k: &Consts, u: u8, f: &[u8], xs: &[f64], x: &[f64], x
     r[l] = b[l] - (k.diag(f[l]) * x[l] - k.nb(f[l], x[l - 1], x[0], xs[l], xn[l]));
 }
 
-/// `||b - A x||^2` on one row.
+/// `||b - A x||^2` on one row (`u`: the row's shared interior flags or [`MIXED`]).
 #[inline(always)]
-pub(crate) fn residual_row_sq(k: &Consts, f: &[u8], xs: &[f64], x: &[f64], xn: &[f64], b: &[f64]) -> f64 {
+pub(crate) fn residual_row_sq(k: &Consts, u: u8, f: &[u8], xs: &[f64], x: &[f64], xn: &[f64], b: &[f64]) -> f64 {
     let n = x.len();
     let (f, xs, xn, b) = (&f[..n], &xs[..n], &xn[..n], &b[..n]);
     let l = n - 1;
@@ -308,11 +308,22 @@ pub(crate) fn residual_row_sq(k: &Consts, f: &[u8], xs: &[f64], x: &[f64], xn: &
         );
         let mut lanes = [0.0f64; LANES];
         let whole = m / LANES * LANES;
-        for c in (0..whole).step_by(LANES) {
-            for (t, lane) in lanes.iter_mut().enumerate() {
-                let i = c + t;
-                let v = b[i] - (k.diag(f[i]) * xc[i] - k.nb(f[i], xw[i], xe[i], xs[i], xn[i]));
-                *lane += v * v;
+        if u != MIXED {
+            let (d, cw, ce, cs, cn) = k.coefs(u);
+            for c in (0..whole).step_by(LANES) {
+                for (t, lane) in lanes.iter_mut().enumerate() {
+                    let i = c + t;
+                    let v = b[i] - (d * xc[i] - (cw * xw[i] + ce * xe[i] + cs * xs[i] + cn * xn[i]));
+                    *lane += v * v;
+                }
+            }
+        } else {
+            for c in (0..whole).step_by(LANES) {
+                for (t, lane) in lanes.iter_mut().enumerate() {
+                    let i = c + t;
+                    let v = b[i] - (k.diag(f[i]) * xc[i] - k.nb(f[i], xw[i], xe[i], xs[i], xn[i]));
+                    *lane += v * v;
+                }
             }
         }
         for v in lanes {

@@ -11,19 +11,38 @@
 use super::blocks::{dot_lanes, sum_rows, MAX_BLOCKS};
 use super::multigrid::{Multigrid, MultigridParams};
 use super::stencil::Stencil5;
+use super::transform::Transform;
 use super::{check_len, SolveError};
 use rayon::prelude::*;
 
 /// Which Krylov method a [`Solver`] uses.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
 pub enum Method {
-    /// Conjugate gradients when the operator is exactly symmetric, else BiCGStab.
+    /// The transform solver when the operator qualifies, else conjugate gradients when it is
+    /// exactly symmetric, else BiCGStab.
     #[default]
     Auto,
     /// Preconditioned conjugate gradients (symmetric positive definite operators only).
     Cg,
     /// Preconditioned BiCGStab (van der Vorst 1992), for any non-singular operator.
     BiCgStab,
+    /// Exact solve by fast cosine/sine transforms (see the `transform` module): uniform
+    /// diffusion on a rectangle of water whose sides are closed or fixed in opposite pairs.
+    /// [`Method::Auto`] takes it whenever the operator qualifies; conjugate gradients finish
+    /// the solve should its residual miss the tolerance.
+    Transform,
+}
+
+impl Method {
+    /// Name of the method as run reports give it.
+    pub fn name(self) -> &'static str {
+        match self {
+            Method::Auto => "auto",
+            Method::Cg => "multigrid_cg",
+            Method::BiCgStab => "multigrid_bicgstab",
+            Method::Transform => "transform",
+        }
+    }
 }
 
 /// Tolerances and caps of a solve.
@@ -67,7 +86,9 @@ pub struct SolveStats {
 pub struct Solver {
     params: SolverParams,
     method: Method,
+    krylov: Method,
     mg: Multigrid,
+    transform: Option<Transform>,
     n: usize,
     nx: usize,
     rpb: usize,
@@ -96,7 +117,9 @@ impl Solver {
         let mut s = Self {
             params,
             method: Method::Auto,
+            krylov: Method::Cg,
             mg,
+            transform: None,
             n: a.cells(),
             nx: a.nx(),
             rpb: a.rpb(),
@@ -122,9 +145,30 @@ impl Solver {
     }
 
     fn resolve_method(&mut self, a: &Stencil5) -> Result<(), SolveError> {
+        self.transform = match self.params.method {
+            Method::Auto | Method::Transform => match self.transform.take() {
+                Some(mut t) => {
+                    if t.refresh(a) {
+                        Some(t)
+                    } else {
+                        Transform::new(a)
+                    }
+                }
+                None => Transform::new(a),
+            },
+            _ => None,
+        };
+        if self.params.method == Method::Transform && self.transform.is_none() {
+            return Err(SolveError::InvalidOperator(
+                "the transform solver needs uniform coefficients on a rectangle of water whose sides are \
+                 closed or fixed in opposite pairs (not periodic); use Method::Auto"
+                    .into(),
+            ));
+        }
+        // The Krylov method: the whole solve, or the finish after a transform solve.
         let m = match self.params.method {
-            Method::Auto if a.is_symmetric() => Method::Cg,
-            Method::Auto => Method::BiCgStab,
+            Method::Auto | Method::Transform if a.is_symmetric() => Method::Cg,
+            Method::Auto | Method::Transform => Method::BiCgStab,
             m => m,
         };
         if m == Method::Cg {
@@ -142,7 +186,8 @@ impl Solver {
                 });
             }
         }
-        self.method = m;
+        self.krylov = m;
+        self.method = if self.transform.is_some() { Method::Transform } else { m };
         self.land.clear();
         self.land
             .extend(a.land().iter().enumerate().filter(|(_, &l)| l).map(|(k, _)| k));
@@ -208,7 +253,18 @@ impl Solver {
         for &k in &self.land {
             x[k] = b[k];
         }
-        let (iterations, rel) = match self.method {
+        if let (Method::Transform, Some(t)) = (self.method, self.transform.as_mut()) {
+            t.solve(b, x);
+            let rel = a.residual_sq(b, x).sqrt() / bnorm;
+            if rel <= self.params.rtol {
+                return Ok(SolveStats {
+                    iterations: 0,
+                    relative_residual: rel,
+                    method: Method::Transform,
+                });
+            }
+        }
+        let (iterations, rel) = match self.krylov {
             Method::BiCgStab => self.bicgstab(a, b, x, bnorm)?,
             _ => self.cg(a, b, x, bnorm)?,
         };

@@ -30,6 +30,7 @@ mod compact;
 pub mod krylov;
 pub mod multigrid;
 pub mod stencil;
+mod transform;
 
 pub use krylov::{Method, SolveStats, Solver, SolverParams};
 pub use multigrid::{Multigrid, MultigridParams};

@@ -554,6 +554,7 @@ impl Stencil5 {
                     let (js, jn) = self.nb_rows(j);
                     acc += compact::residual_row_sq(
                         &c.k,
+                        c.rows[j],
                         &c.flags[j * nx..(j + 1) * nx],
                         &x[js * nx..(js + 1) * nx],
                         &x[j * nx..(j + 1) * nx],

@@ -110,6 +110,11 @@ impl Implicit {
         })
     }
 
+    /// The method of the linear solver for the current operator.
+    pub(crate) fn solver_method(&self) -> crate::solve::Method {
+        self.solver.method()
+    }
+
     /// Assembles `I - theta dt (L_up + L_diff)` at flow factor `factor` (convection only when
     /// it is implicit) and the constant side terms of the right-hand side, unless already done
     /// for this `(dt, factor)`.

@@ -527,6 +527,14 @@ impl Simulation {
         Ok(())
     }
 
+    /// The linear solver of the implicit steps (`None` for explicit runs).
+    pub fn linear_solver(&self) -> Option<crate::solve::Method> {
+        match &self.stepper {
+            Stepper::Explicit(_) => None,
+            Stepper::Implicit(imp) => Some(imp.solver_method()),
+        }
+    }
+
     /// Linear-solver iterations and deferred corrections of the last step (0 for explicit).
     pub fn last_iterations(&self) -> (usize, usize) {
         match &self.stepper {
