@@ -236,7 +236,16 @@ impl Solver {
                 "operator shape differs from the one the solver was built for".into(),
             ));
         }
-        let bnorm = dot(b, b, self.nx, self.rpb).sqrt();
+        // The transform solver forms ||b|| and the true residual on its way.
+        let mut done = None;
+        if let (Method::Transform, Some(t)) = (self.method, self.transform.as_mut()) {
+            let (bb, rr) = t.solve(a, b, x);
+            done = Some((bb.sqrt(), rr.sqrt()));
+        }
+        let bnorm = match done {
+            Some((bn, _)) => bn,
+            None => dot(b, b, self.nx, self.rpb).sqrt(),
+        };
         if !bnorm.is_finite() {
             return Err(SolveError::NonFinite("the right-hand side"));
         }
@@ -253,9 +262,8 @@ impl Solver {
         for &k in &self.land {
             x[k] = b[k];
         }
-        if let (Method::Transform, Some(t)) = (self.method, self.transform.as_mut()) {
-            t.solve(b, x);
-            let rel = a.residual_sq(b, x).sqrt() / bnorm;
+        if let Some((_, rn)) = done {
+            let rel = rn / bnorm;
             if rel <= self.params.rtol {
                 return Ok(SolveStats {
                     iterations: 0,
