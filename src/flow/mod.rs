@@ -120,8 +120,8 @@ impl Flow {
         spec.validate()?;
         let n = grid.padded_len();
         let (nx, ny) = (grid.nx, grid.ny);
-        let mut u = vec![0.0; n];
-        let mut v = vec![0.0; n];
+        let mut u = crate::field::huge_filled(n, 0.0);
+        let mut v = crate::field::huge_filled(n, 0.0);
         match spec.kind {
             FlowKind::Uniform { u: u0, v: v0 } => {
                 for j in 0..ny as isize {

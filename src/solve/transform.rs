@@ -349,7 +349,7 @@ impl Transform {
             m: c.k.m,
             x,
             y,
-            work: huge_zeroed(nx * ny),
+            work: crate::field::huge_filled(nx * ny, 0.0),
             lines_x,
             lines_y,
             scratch: vec![Complex::new(0.0, 0.0); blocks * scratch_len],
@@ -506,26 +506,6 @@ unsafe fn scatter(rows: &[f64], width: usize, r0: usize, dst: SyncPtr, n: usize)
             }
         }
     }
-}
-
-/// A zeroed vector of `n` values whose pages the kernel is asked to back with transparent
-/// huge pages (Linux `madvise`; a hint only, ignored where unsupported). The strided
-/// transposes otherwise miss the TLB on nearly every line at 2048^2.
-fn huge_zeroed(n: usize) -> Vec<f64> {
-    let v = vec![0.0; n];
-    #[cfg(target_os = "linux")]
-    {
-        const HUGE: usize = 2 << 20;
-        let start = v.as_ptr() as usize;
-        let end = start + n * std::mem::size_of::<f64>();
-        let (a, e) = (start.next_multiple_of(HUGE), end / HUGE * HUGE);
-        if e > a {
-            // SAFETY: [a, e) lies inside the allocation of `v`, which outlives the call;
-            // MADV_HUGEPAGE changes no contents, only how untouched pages are backed.
-            unsafe { libc::madvise(a as *mut libc::c_void, e - a, libc::MADV_HUGEPAGE) };
-        }
-    }
-    v
 }
 
 /// Transposing gather: `out` holds `out.len() / n` lines of `n`, and line `k` gets column

@@ -93,8 +93,8 @@ impl Explicit {
         let (blocks, rows_per_block) = blocks_for(model);
         Self {
             // Filled with NaN so that any read of a value no stage wrote shows up at once.
-            a: vec![f64::NAN; model.grid.padded_len()],
-            b: vec![f64::NAN; model.grid.padded_len()],
+            a: crate::field::huge_filled(model.grid.padded_len(), f64::NAN),
+            b: crate::field::huge_filled(model.grid.padded_len(), f64::NAN),
             blocks,
             rows_per_block,
         }

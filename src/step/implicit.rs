@@ -83,7 +83,7 @@ impl Implicit {
             ..SolverParams::default()
         };
         let solver = Solver::new(&a, params)?;
-        let padded = || vec![f64::NAN; m.grid.padded_len()];
+        let padded = || crate::field::huge_filled(m.grid.padded_len(), f64::NAN);
         Ok(Self {
             time: scheme.time,
             limiter: scheme.limiter,

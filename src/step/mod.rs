@@ -380,7 +380,7 @@ pub struct Simulation {
 impl Simulation {
     /// Starts a run at t = 0 from the padded `initial` field (land cells are zeroed);
     /// instantaneous releases at t <= 0 are applied at once and booked as added mass.
-    pub fn new(model: Model, scheme: Scheme, mut initial: Vec<f64>) -> Result<Self, ModelError> {
+    pub fn new(model: Model, scheme: Scheme, initial: Vec<f64>) -> Result<Self, ModelError> {
         if initial.len() != model.grid.padded_len() {
             return Err(invalid(
                 "initial field length",
@@ -389,6 +389,13 @@ impl Simulation {
             ));
         }
         let dt_max = max_step(&model, &scheme)?;
+        // The state swaps buffers with the stepper every step: give it the same huge-page
+        // backing as the stepper's own.
+        let mut initial = {
+            let mut c = crate::field::huge_filled(initial.len(), 0.0);
+            c.copy_from_slice(&initial);
+            c
+        };
         for j in 0..model.grid.ny {
             for i in 0..model.grid.nx {
                 let p = model.grid.idx(i as isize, j as isize);
