@@ -1,7 +1,9 @@
 //! Linear solvers for the implicit time steppers: 5-point operators on the structured grid
 //! ([`Stencil5`]), geometric multigrid on the same grid with land masks ([`Multigrid`]), and
 //! Krylov drivers preconditioned by one multigrid V-cycle ([`Solver`]: conjugate gradients for
-//! symmetric operators, BiCGStab for non-symmetric ones).
+//! symmetric operators, BiCGStab for non-symmetric ones). Uniform diffusion on a rectangle of
+//! water with closed or fixed sides in pairs is solved exactly by fast cosine/sine transforms
+//! instead ([`Method::Transform`], which [`Method::Auto`] picks when the operator qualifies).
 //!
 //! Vectors handed to the solvers are the interior cells only, `nx * ny` values, row-major,
 //! row 0 south, i fastest (not the padded layout of [`crate::grid::Grid::idx`]). Land cells
