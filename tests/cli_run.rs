@@ -19,6 +19,16 @@ fn run_with(dir: &Path, scenario: &str, quiet: bool, sets: &[&str]) -> std::proc
     tinct(&args, dir)
 }
 
+/// Runs the shipped Gaussian puff with `--set` overrides into `dir/results`; asserts success and
+/// returns the output and the parsed `summary.json`.
+fn puff_run(dir: &Path, quiet: bool, sets: &[&str]) -> (std::process::Output, serde_json::Value) {
+    let puff = root().join("scenarios/gaussian-puff.toml");
+    let out = run_with(dir, puff.to_str().unwrap(), quiet, sets);
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let text = std::fs::read_to_string(dir.join("results/gaussian-puff/summary.json")).unwrap();
+    (out, serde_json::from_str(&text).unwrap())
+}
+
 fn shipped() -> Vec<PathBuf> {
     let mut v: Vec<PathBuf> = std::fs::read_dir(root().join("scenarios"))
         .unwrap()
@@ -267,21 +277,12 @@ fn a_diverging_run_exits_1_with_step_time_cell_and_keeps_its_logs() {
 fn crank_nicolson_at_a_large_diffusion_number_warns_on_stderr_and_in_the_summary() {
     let tmp = tempfile::tempdir().unwrap();
     let puff = root().join("scenarios/gaussian-puff.toml");
-    let out = run_with(
-        tmp.path(),
-        puff.to_str().unwrap(),
-        false,
-        &["scheme.time=crank_nicolson", "run.frames=2"],
-    );
+    let (out, summary) = puff_run(tmp.path(), false, &["scheme.time=crank_nicolson", "run.frames=2"]);
     let stderr = String::from_utf8_lossy(&out.stderr);
-    assert!(out.status.success(), "{stderr}");
     assert!(
         stderr.contains("warning") && stderr.contains("diffusion number"),
         "{stderr}"
     );
-    let summary: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(tmp.path().join("results/gaussian-puff/summary.json")).unwrap())
-            .unwrap();
     assert_eq!(summary["scheme"]["time"], "crank_nicolson");
     assert!(summary["warnings"]
         .as_array()
@@ -335,17 +336,7 @@ fn a_solver_that_cannot_converge_stops_the_run_with_exit_1_the_step_and_the_resi
 #[test]
 fn imex_on_open_water_uses_the_transform_solver() {
     let tmp = tempfile::tempdir().unwrap();
-    let puff = root().join("scenarios/gaussian-puff.toml");
-    let out = run_with(
-        tmp.path(),
-        puff.to_str().unwrap(),
-        true,
-        &["scheme.time=imex", "run.frames=2"],
-    );
-    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
-    let summary: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(tmp.path().join("results/gaussian-puff/summary.json")).unwrap())
-            .unwrap();
+    let (_, summary) = puff_run(tmp.path(), true, &["scheme.time=imex", "run.frames=2"]);
     assert_eq!(summary["scheme"]["linear_solver"], "transform");
     assert_eq!(summary["solver_iterations"].as_u64(), Some(0));
     assert_eq!(summary["status"], "completed");
