@@ -15,7 +15,7 @@ use super::transform::Transform;
 use super::{check_len, SolveError};
 use rayon::prelude::*;
 
-/// Which Krylov method a [`Solver`] uses.
+/// Which method a [`Solver`] uses.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
 pub enum Method {
     /// The transform solver when the operator qualifies, else conjugate gradients when it is
