@@ -6,7 +6,7 @@
 //!   a legend of swatches under the map.
 //! - [`write_scalar_png`]: a value per cell on one of the project's ramps, linear or
 //!   logarithmic, with decade (log) or rounded (linear) ticks; values outside the range take
-//!   the end colours, infinite values the top colour, NaN the [`NAN_RGB`] flag.
+//!   the end colours, infinite values the top colour, NaN the [`NAN_RGB`](super::colour::NAN_RGB) flag.
 //!
 //! Like the rest of `output`, this depends on no other tinct module: callers pass plain slices.
 

@@ -3,7 +3,7 @@
 //! [`Simulation`] owns the model, the state, the stepper's scratch (allocated once) and the mass
 //! budget, and advances to requested times with steps that land on them exactly. The explicit
 //! stepper is the SSP Runge–Kutta family of Shu & Osher (1988) with 1, 2 or 3 stages, each stage
-//! one fused sweep of [`kernel`].
+//! one fused sweep of the `kernel` module.
 
 mod explicit;
 mod implicit;
