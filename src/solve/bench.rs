@@ -18,7 +18,7 @@ pub struct DiffusionBench {
     pub d: f64,
     /// rayon threads in the pool that ran it.
     pub threads: usize,
-    /// Multigrid levels.
+    /// Multigrid levels (0 when the transform solver served alone).
     pub levels: usize,
     /// The method the solver ran (after resolving [`super::Method::Auto`]).
     pub method: super::Method,
@@ -91,7 +91,7 @@ pub fn implicit_diffusion(n: usize, steps: usize, d: f64, params: SolverParams) 
         n,
         d,
         threads: rayon::current_num_threads(),
-        levels: solver.multigrid().levels(),
+        levels: solver.multigrid().map_or(0, |m| m.levels()),
         method: solver.method(),
         setup_seconds,
         seconds: Vec::with_capacity(steps),

@@ -45,6 +45,18 @@ impl Method {
     }
 }
 
+/// `z = M r` by one V-cycle (the identity if no hierarchy was built, which `solve` prevents);
+/// returns `r . z` when the V-cycle formed it.
+fn precondition(mg: &mut Option<Multigrid>, a: &Stencil5, r: &[f64], z: &mut [f64]) -> Option<f64> {
+    match mg {
+        Some(m) => m.vcycle(a, r, z),
+        None => {
+            z.copy_from_slice(r);
+            None
+        }
+    }
+}
+
 /// Tolerances and caps of a solve.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct SolverParams {
@@ -87,7 +99,8 @@ pub struct Solver {
     params: SolverParams,
     method: Method,
     krylov: Method,
-    mg: Multigrid,
+    /// Built when a Krylov solve may run (not while the transform solver serves alone).
+    mg: Option<Multigrid>,
     transform: Option<Transform>,
     n: usize,
     nx: usize,
@@ -103,7 +116,8 @@ pub struct Solver {
 }
 
 impl Solver {
-    /// Builds the multigrid hierarchy and all scratch for `a`.
+    /// Builds the solver for `a`: the transform solver when `a` qualifies (see
+    /// [`Method::Transform`]), else the multigrid hierarchy, and all scratch.
     pub fn new(a: &Stencil5, params: SolverParams) -> Result<Self, SolveError> {
         check_rtol(params.rtol)?;
         if params.max_iter == 0 {
@@ -113,12 +127,12 @@ impl Solver {
                 allowed: ">= 1",
             });
         }
-        let mg = Multigrid::new(a, params.multigrid)?;
+        params.multigrid.validate()?;
         let mut s = Self {
             params,
             method: Method::Auto,
             krylov: Method::Cg,
-            mg,
+            mg: None,
             transform: None,
             n: a.cells(),
             nx: a.nx(),
@@ -140,8 +154,18 @@ impl Solver {
     /// allocation unless the operator changes between symmetric and non-symmetric under
     /// [`Method::Auto`].
     pub fn update(&mut self, a: &Stencil5) -> Result<(), SolveError> {
-        self.mg.update(a)?;
+        if let Some(mg) = self.mg.as_mut() {
+            mg.update(a)?;
+        }
         self.resolve_method(a)
+    }
+
+    /// Builds the multigrid hierarchy for `a` if there is none yet.
+    fn ensure_multigrid(&mut self, a: &Stencil5) -> Result<(), SolveError> {
+        if self.mg.is_none() {
+            self.mg = Some(Multigrid::new(a, self.params.multigrid)?);
+        }
+        Ok(())
     }
 
     fn resolve_method(&mut self, a: &Stencil5) -> Result<(), SolveError> {
@@ -188,6 +212,9 @@ impl Solver {
         }
         self.krylov = m;
         self.method = if self.transform.is_some() { Method::Transform } else { m };
+        if self.transform.is_none() {
+            self.ensure_multigrid(a)?;
+        }
         self.land.clear();
         self.land
             .extend(a.land().iter().enumerate().filter(|(_, &l)| l).map(|(k, _)| k));
@@ -220,9 +247,9 @@ impl Solver {
         self.method
     }
 
-    /// The multigrid preconditioner.
-    pub fn multigrid(&self) -> &Multigrid {
-        &self.mg
+    /// The multigrid preconditioner (`None` while the transform solver serves alone).
+    pub fn multigrid(&self) -> Option<&Multigrid> {
+        self.mg.as_ref()
     }
 
     /// Solves `A x = b` to the relative tolerance, starting from `x`. `a` must be the operator
@@ -272,6 +299,9 @@ impl Solver {
                 });
             }
         }
+        // The Krylov finish after a transform solve builds the hierarchy on first use (the
+        // only allocation a solve can make).
+        self.ensure_multigrid(a)?;
         let (iterations, rel) = match self.krylov {
             Method::BiCgStab => self.bicgstab(a, b, x, bnorm)?,
             _ => self.cg(a, b, x, bnorm)?,
@@ -305,7 +335,7 @@ impl Solver {
             if rr.sqrt() <= tol || it >= self.params.max_iter {
                 return Ok((it, rr.sqrt() / bnorm));
             }
-            let mut rz = match self.mg.vcycle(a, &self.r, &mut self.z) {
+            let mut rz = match precondition(&mut self.mg, a, &self.r, &mut self.z) {
                 Some(d) => d,
                 None => dot(&self.r, &self.z, nx, rpb),
             };
@@ -322,7 +352,7 @@ impl Solver {
                 if rr.sqrt() <= tol {
                     break;
                 }
-                let rz_new = match self.mg.vcycle(a, &self.r, &mut self.z) {
+                let rz_new = match precondition(&mut self.mg, a, &self.r, &mut self.z) {
                     Some(d) => d,
                     None => dot(&self.r, &self.z, nx, rpb),
                 };
@@ -365,7 +395,7 @@ impl Solver {
                 let beta = (rho / rho_old) * (alpha / omega);
                 // p = r + beta (p - omega v)
                 bicg_p(&mut self.p, &self.r, &self.q, beta, omega, nx, rpb);
-                self.mg.vcycle(a, &self.p, &mut self.z); // y = M p
+                precondition(&mut self.mg, a, &self.p, &mut self.z); // y = M p
                 a.apply_dot(&self.z, &mut self.q); // v = A y
                 let rv = dot(&self.rhat, &self.q, nx, rpb);
                 if !(rv.abs() > 0.0) {
@@ -378,7 +408,7 @@ impl Solver {
                     axpy(x, &self.z, alpha, nx, rpb);
                     break;
                 }
-                self.mg.vcycle(a, &self.r, &mut self.zz); // z = M s
+                precondition(&mut self.mg, a, &self.r, &mut self.zz); // z = M s
                 a.apply_dot(&self.zz, &mut self.t); // t = A z
                 let (ts, tt) = dot2(&self.t, &self.r, nx, rpb);
                 omega = if tt > 0.0 { ts / tt } else { 0.0 };

@@ -8,7 +8,8 @@
 //! Vectors handed to the solvers are the interior cells only, `nx * ny` values, row-major,
 //! row 0 south, i fastest (not the padded layout of [`crate::grid::Grid::idx`]). Land cells
 //! are identity rows, so the solution there is the right-hand side. All work arrays are
-//! allocated when a solver is built; a solve call allocates nothing. Work is split over
+//! allocated when a solver is built; a solve call allocates nothing (but for the multigrid
+//! hierarchy, built the first time a transform solve hands over to CG). Work is split over
 //! blocks of contiguous rows with rayon; every reduction sums per-block partials in a fixed
 //! order, so results do not depend on thread scheduling.
 //!

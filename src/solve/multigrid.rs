@@ -79,7 +79,7 @@ impl Default for MultigridParams {
 }
 
 impl MultigridParams {
-    fn validate(&self) -> Result<(), SolveError> {
+    pub(crate) fn validate(&self) -> Result<(), SolveError> {
         let bad = |what, value: String, allowed| Err(SolveError::InvalidParameter { what, value, allowed });
         if self.pre_sweeps == 0 {
             return bad("pre_sweeps", "0".into(), ">= 1");
