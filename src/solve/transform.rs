@@ -278,6 +278,8 @@ pub(crate) struct Transform {
     scratch_len: usize,
     /// Per row block: partial sums of `b . b` and of the squared residual.
     partial: Vec<[f64; 2]>,
+    /// Per row block: [`TILE`] transformed rows on their way to `work`.
+    group: Vec<f64>,
 }
 
 /// The ends of both axes if `c` (on `nx` by `ny` cells, not periodic) is a rectangle of water
@@ -355,6 +357,7 @@ impl Transform {
             scratch: vec![Complex::new(0.0, 0.0); blocks * scratch_len],
             scratch_len,
             partial: vec![[0.0; 2]; ny.div_ceil(lines_x)],
+            group: vec![0.0; ny.div_ceil(lines_x) * TILE * nx],
         })
     }
 
@@ -376,8 +379,8 @@ impl Transform {
 
     /// `x = A^-1 b` for the operator `a` the solver was built or refreshed for (no
     /// allocation); returns `(b . b, ||b - A x||^2)`, both summed per row block in block order.
-    /// Three parallel passes: blocks of rows of `b` transformed along x (in `x`) and scattered
-    /// as columns into `work` (column-major); blocks of columns of `work` transformed along y,
+    /// Three parallel passes: groups of [`TILE`] rows of `b` transformed along x (in a small
+    /// per-block buffer) and scattered as columns into `work` (column-major); blocks of columns of `work` transformed along y,
     /// divided by the eigenvalue sums and transformed back in place; blocks of rows gathered
     /// back from `work` into `x`, transformed back along x, and their residual rows summed
     /// while in cache (a block's first and last rows, whose neighbours another block writes,
@@ -397,6 +400,7 @@ impl Transform {
             scratch,
             scratch_len,
             partial,
+            group,
         } = self;
         let (nx, ny, m, sl) = (*nx, *ny, *m, *scratch_len);
         let (lx, ly) = (*lines_x, *lines_y);
@@ -404,22 +408,27 @@ impl Transform {
             return (f64::NAN, f64::NAN);
         };
         let wp = SyncPtr(work.as_mut_ptr());
-        x.par_chunks_mut(lx * nx)
-            .zip(b.par_chunks(lx * nx))
+        b.par_chunks(lx * nx)
+            .zip(group.par_chunks_mut(TILE * nx))
             .zip(scratch.par_chunks_mut(sl))
             .zip(partial.par_iter_mut())
             .enumerate()
-            .for_each(|(blk, (((rows, src), s), part))| {
+            .for_each(|(blk, (((src, rows), s), part))| {
                 part[0] = dot_lanes(src, src);
                 let (z, fs) = s.split_at_mut(nx);
-                in_pairs(rows, nx, |k, a, b| {
-                    let sb = b.as_ref().map(|_| &src[(k + 1) * nx..(k + 2) * nx]);
-                    ax.forward_from(&src[k * nx..(k + 1) * nx], sb, a, b, z, fs);
-                });
-                // SAFETY: block `blk` writes only the entries (c, r) of `work` with r in its
-                // own rows, which no other block writes, and nothing reads `work` until the
-                // pass ends; `work` holds nx * ny values.
-                unsafe { scatter(rows, nx, blk * lx, wp, ny) };
+                // Groups of TILE rows: transformed into the group buffer (in L1/L2), then
+                // scattered as one cache line per column.
+                for (g, sg) in src.chunks(TILE * nx).enumerate() {
+                    let rows = &mut rows[..sg.len()];
+                    in_pairs(rows, nx, |k, a, b| {
+                        let sb = b.as_ref().map(|_| &sg[(k + 1) * nx..(k + 2) * nx]);
+                        ax.forward_from(&sg[k * nx..(k + 1) * nx], sb, a, b, z, fs);
+                    });
+                    // SAFETY: block `blk` writes only the entries (c, r) of `work` with r in
+                    // its own rows, which no other block writes, and nothing reads `work`
+                    // until the pass ends; `work` holds nx * ny values.
+                    unsafe { scatter(rows, nx, blk * lx + g * TILE, wp, ny) };
+                }
             });
         // Each inverse returns its length times the line, hence the factor.
         let scale = 1.0 / (nx as f64 * ny as f64);
