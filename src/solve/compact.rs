@@ -306,36 +306,42 @@ pub(crate) fn residual_row_sq(k: &Consts, u: u8, f: &[u8], xs: &[f64], x: &[f64]
             &xn[1..=m],
             &b[1..=m],
         );
-        let mut lanes = [0.0f64; LANES];
-        let whole = m / LANES * LANES;
-        if u != MIXED {
+        acc += if u != MIXED {
             let (d, cw, ce, cs, cn) = k.coefs(u);
-            for c in (0..whole).step_by(LANES) {
-                for (t, lane) in lanes.iter_mut().enumerate() {
-                    let i = c + t;
-                    let v = b[i] - (d * xc[i] - (cw * xw[i] + ce * xe[i] + cs * xs[i] + cn * xn[i]));
-                    *lane += v * v;
-                }
-            }
+            sum_sq_lanes(m, |i| {
+                b[i] - (d * xc[i] - (cw * xw[i] + ce * xe[i] + cs * xs[i] + cn * xn[i]))
+            })
         } else {
-            for c in (0..whole).step_by(LANES) {
-                for (t, lane) in lanes.iter_mut().enumerate() {
-                    let i = c + t;
-                    let v = b[i] - (k.diag(f[i]) * xc[i] - k.nb(f[i], xw[i], xe[i], xs[i], xn[i]));
-                    *lane += v * v;
-                }
-            }
-        }
-        for v in lanes {
-            acc += v;
-        }
-        for i in whole..m {
-            let v = b[i] - (k.diag(f[i]) * xc[i] - k.nb(f[i], xw[i], xe[i], xs[i], xn[i]));
-            acc += v * v;
-        }
+            sum_sq_lanes(m, |i| {
+                b[i] - (k.diag(f[i]) * xc[i] - k.nb(f[i], xw[i], xe[i], xs[i], xn[i]))
+            })
+        };
     }
     let v1 = res(l, x[l - 1], x[0]);
     acc + v1 * v1
+}
+
+/// `sum_i v(i)^2` over `0..m` in `LANES` interleaved partial sums (so the loop vectorises),
+/// added in a fixed order, then the tail.
+#[inline(always)]
+fn sum_sq_lanes(m: usize, v: impl Fn(usize) -> f64) -> f64 {
+    let mut lanes = [0.0f64; LANES];
+    let whole = m / LANES * LANES;
+    for c in (0..whole).step_by(LANES) {
+        for (t, lane) in lanes.iter_mut().enumerate() {
+            let r = v(c + t);
+            *lane += r * r;
+        }
+    }
+    let mut acc = 0.0;
+    for s in lanes {
+        acc += s;
+    }
+    for i in whole..m {
+        let r = v(i);
+        acc += r * r;
+    }
+    acc
 }
 
 /// One colour of a red-black Gauss–Seidel half-sweep on a row, out of place: cells with
