@@ -229,21 +229,19 @@ impl Axis {
         let odd = if self.fixed { -1.0 } else { 1.0 };
         let (h, t) = (n.div_ceil(2), n / 2);
         let (front, back) = z.split_at(h);
-        let a = &mut a[..n];
-        for (p, zp) in front.iter().enumerate() {
-            a[2 * p] = zp.re;
-        }
-        for (q, zq) in back.iter().enumerate() {
-            a[2 * (t - 1 - q) + 1] = odd * zq.re;
-        }
-        if let Some(b) = b {
-            let b = &mut b[..n];
+        // Undo the reordering of `load`: the real parts are line `a`, the imaginary ones `b`.
+        let unload = |out: &mut [f64], part: fn(&Complex<f64>) -> f64| {
+            let out = &mut out[..n];
             for (p, zp) in front.iter().enumerate() {
-                b[2 * p] = zp.im;
+                out[2 * p] = part(zp);
             }
             for (q, zq) in back.iter().enumerate() {
-                b[2 * (t - 1 - q) + 1] = odd * zq.im;
+                out[2 * (t - 1 - q) + 1] = odd * part(zq);
             }
+        };
+        unload(a, |c| c.re);
+        if let Some(b) = b {
+            unload(b, |c| c.im);
         }
     }
 }
