@@ -26,8 +26,9 @@ pub enum Method {
     Cg,
     /// Preconditioned BiCGStab (van der Vorst 1992), for any non-singular operator.
     BiCgStab,
-    /// Exact solve by fast cosine/sine transforms (see the `transform` module): uniform
-    /// diffusion on a rectangle of water whose sides are closed or fixed in opposite pairs.
+    /// Exact solve by a fast cosine/sine transform along x and elimination along y (see the
+    /// `transform` module): uniform diffusion on a rectangle of water whose west and east sides
+    /// are both closed or both fixed and whose south and north ends are closed or fixed.
     /// [`Method::Auto`] takes it whenever the operator qualifies; conjugate gradients finish
     /// the solve should its residual miss the tolerance.
     Transform,
@@ -184,8 +185,9 @@ impl Solver {
         };
         if self.params.method == Method::Transform && self.transform.is_none() {
             return Err(SolveError::InvalidOperator(
-                "the transform solver needs uniform coefficients on a rectangle of water whose sides are \
-                 closed or fixed in opposite pairs (not periodic); use Method::Auto"
+                "the transform solver needs uniform coefficients on a rectangle of water whose west and \
+                 east sides are both closed or both fixed and whose south and north sides are closed or \
+                 fixed (not periodic); use Method::Auto"
                     .into(),
             ));
         }
