@@ -555,12 +555,16 @@ impl Transform {
             .zip(scratch.par_chunks_mut(sl))
             .zip(partial.par_iter_mut())
             .for_each(|(((src, rows), s), part)| {
-                part[0] = dot_lanes(src, src);
                 let (z, fs) = s.split_at_mut(nx);
+                let mut bb = 0.0;
                 in_pairs(rows, nx, |k, a, b| {
+                    // b . b summed while the rows are in L1.
+                    let sa = &src[k * nx..(k + 1) * nx];
                     let sb = b.as_ref().map(|_| &src[(k + 1) * nx..(k + 2) * nx]);
-                    ax.forward_from(&src[k * nx..(k + 1) * nx], sb, a, b, z, fs);
+                    bb += dot_lanes(sa, sa) + sb.map_or(0.0, |v| dot_lanes(v, v));
+                    ax.forward_from(sa, sb, a, b, z, fs);
                 });
+                part[0] = bb;
             });
         // The inverse transform returns nx times the line, hence the scale.
         let scale = 1.0 / nx as f64;
@@ -580,12 +584,23 @@ impl Transform {
             .enumerate()
             .for_each(|(blk, ((rows, s), part))| {
                 let (z, fs) = s.split_at_mut(nx);
-                in_pairs(rows, nx, |_, a, b| ax.inverse(a, b, z, fs));
                 let h = rows.len() / nx;
-                let line = |t: usize| &rows[t * nx..(t + 1) * nx];
-                part[1] = (1..h.saturating_sub(1))
-                    .map(|t| res_row(blk * lx + t, line(t - 1), line(t), line(t + 1)))
-                    .sum();
+                let mut rr = 0.0;
+                let mut t = 0;
+                // Rows transformed back in pairs; each interior row's residual is summed as
+                // soon as its upper neighbour is final, so all three rows are still in L1/L2.
+                while t < h {
+                    let two = (h - t).min(2);
+                    let (pa, pb) = rows[t * nx..(t + two) * nx].split_at_mut(nx);
+                    ax.inverse(pa, (two == 2).then_some(pb), z, fs);
+                    let ready = t + two;
+                    let line = |r: usize| &rows[r * nx..(r + 1) * nx];
+                    for r in t.saturating_sub(1).max(1)..(ready - 1).min(h - 1) {
+                        rr += res_row(blk * lx + r, line(r - 1), line(r), line(r + 1));
+                    }
+                    t = ready;
+                }
+                part[1] = rr;
             });
         // The first and last row of every block, now that all rows are final.
         let xr: &[f64] = x;
