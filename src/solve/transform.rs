@@ -350,40 +350,80 @@ impl Tridiag {
         &self.inv[r * nx..(r + 1) * nx]
     }
 
-    /// Solves the systems of modes `k0 .. k0 + w` in place on the row-major field at `x`
-    /// (rows of `nx`), scaling the right-hand side by `s` on the way.
+    /// Reciprocal pivots of row `j` (the last row's own when `j = ny - 1`).
+    #[inline]
+    fn pivots(&self, j: usize) -> &[f64] {
+        if j + 1 == self.ny {
+            &self.last
+        } else {
+            self.row(j)
+        }
+    }
+
+    /// Forward elimination of modes `k0 .. k0 + w` (`cols`) in place on the row-major field at `x`
+    /// (rows of `nx`), the right-hand side scaled by `s`: `g_j = (s f_j + cy g_{j-1}) / p_j`.
+    /// On the way it prepares the back substitution `u_j = g_j + e_j u_{j+1}`
+    /// (`e_j = cy / p_j`) to run block by block (blocks of `lines` rows): per block `B` with
+    /// rows `j0 .. j1` it sums `S_B = sum_i P_i g_i` and `P_B = P_{j1}`, where
+    /// `P_{j0} = 1` and `P_{i+1} = P_i e_i`, so that `u_{j0} = S_B + P_B u_{j1}`; a sweep down
+    /// the blocks then leaves in `tops` row `B` the value `u` of row `j0` of block `B`, from
+    /// which [`Self::back_block`] finishes block `B - 1` without the others. `tops` and `prods`
+    /// hold one row of `nx` per block.
     ///
     /// # Safety
-    /// `x` must point to `nx * ny` values, `k0 + w <= nx`, and no other thread may access
-    /// columns `k0 .. k0 + w` meanwhile.
-    unsafe fn solve_columns(&self, x: SyncPtr, k0: usize, w: usize, s: f64) {
+    /// `x` must point to `nx * ny` values and `tops`, `prods` to `nx` times the block count,
+    /// `k0 + w <= nx`, and no other thread may access columns `k0 .. k0 + w` of any of them
+    /// meanwhile.
+    unsafe fn forward(&self, x: SyncPtr, (k0, w): (usize, usize), s: f64, lines: usize, tops: SyncPtr, prods: SyncPtr) {
         let (nx, ny, cy) = (self.last.len(), self.ny, self.cy);
-        // SAFETY: row j's part lies inside the field and belongs to this caller alone; the
-        // two parts borrowed at once are different rows.
-        let part = |j: usize| unsafe { std::slice::from_raw_parts_mut(x.0.add(j * nx + k0), w) };
-        let piv = |j: usize| {
-            if j + 1 == ny {
-                &self.last[k0..k0 + w]
-            } else {
-                &self.row(j)[k0..k0 + w]
+        // SAFETY: row j's part lies inside its array and belongs to this caller alone; the
+        // parts borrowed at once are different rows or different arrays.
+        let part = |p: SyncPtr, j: usize| unsafe { std::slice::from_raw_parts_mut(p.ptr().add(j * nx + k0), w) };
+        let blocks = ny.div_ceil(lines);
+        for blk in 0..blocks {
+            let (sum, prod) = (part(tops, blk), part(prods, blk));
+            sum.fill(0.0);
+            prod.fill(1.0);
+            for j in blk * lines..((blk + 1) * lines).min(ny) {
+                let (g, piv) = (part(x, j), &self.pivots(j)[k0..k0 + w]);
+                if j == 0 {
+                    for (v, &p) in g.iter_mut().zip(piv) {
+                        *v *= s * p;
+                    }
+                } else {
+                    let prev = &*part(x, j - 1);
+                    for ((v, &q), &p) in g.iter_mut().zip(prev).zip(piv) {
+                        *v = (s * *v + cy * q) * p;
+                    }
+                }
+                for (((t, f), &v), &p) in sum.iter_mut().zip(prod.iter_mut()).zip(&*g).zip(piv) {
+                    *t += *f * v;
+                    *f *= cy * p;
+                }
             }
-        };
-        // Forward elimination: g_j = (s f_j + cy g_{j-1}) / p_j.
-        for (v, &p) in part(0).iter_mut().zip(piv(0)) {
-            *v *= s * p;
         }
-        for j in 1..ny {
-            let (g, prev) = (part(j), &*part(j - 1));
-            for ((v, &q), &p) in g.iter_mut().zip(prev).zip(piv(j)) {
-                *v = (s * *v + cy * q) * p;
+        // u at the first row of each block, from the top block down (nothing above row ny - 1).
+        for blk in (0..blocks.saturating_sub(1)).rev() {
+            let (up, sum, prod) = (&*part(tops, blk + 1), part(tops, blk), &*part(prods, blk));
+            for ((t, &f), &u) in sum.iter_mut().zip(prod).zip(up) {
+                *t += f * u;
             }
         }
-        // Back substitution: u_j = g_j + (cy / p_j) u_{j+1}.
-        for j in (0..ny - 1).rev() {
-            let (u, next) = (part(j), &*part(j + 1));
-            for ((v, &q), &p) in u.iter_mut().zip(next).zip(piv(j)) {
-                *v += cy * p * q;
+    }
+
+    /// Back substitution of the rows `rows` (rows `j0 ..` of the field, all modes, after
+    /// [`Self::forward`]), with `above` the value `u` of the row after them (`None` at the
+    /// top of the field): `u_j = g_j + (cy / p_j) u_{j+1}`, from the top row down.
+    fn back_block(&self, rows: &mut [f64], j0: usize, above: Option<&[f64]>) {
+        let (nx, cy) = (self.last.len(), self.cy);
+        let mut next: Option<&[f64]> = above;
+        for (t, u) in rows.chunks_exact_mut(nx).enumerate().rev() {
+            if let Some(q) = next {
+                for ((v, &q), &p) in u.iter_mut().zip(q).zip(self.pivots(j0 + t)) {
+                    *v += cy * p * q;
+                }
             }
+            next = Some(u);
         }
     }
 }
@@ -409,6 +449,10 @@ pub(crate) struct Transform {
     scratch_len: usize,
     /// Per row block: partial sums of `b . b` and of the squared residual.
     partial: Vec<[f64; 2]>,
+    /// Per row block, all modes: `u` at its first row, and the product of the `e_j` of its
+    /// rows (see [`Tridiag::forward`]).
+    tops: Vec<f64>,
+    prods: Vec<f64>,
 }
 
 /// How `c` (on `nx` by `ny` cells, not periodic) ends: the x ends as a pair and whether the
@@ -502,7 +546,20 @@ impl Transform {
             scratch: vec![Complex::new(0.0, 0.0); blocks * scratch_len],
             scratch_len,
             partial: vec![[0.0; 2]; blocks],
+            tops: vec![0.0; blocks * nx],
+            prods: vec![0.0; blocks * nx],
         })
+    }
+
+    /// Blocks of `lines` rows (even) from now on.
+    #[cfg(test)]
+    fn set_lines(&mut self, lines: usize) {
+        let blocks = self.ny.div_ceil(lines);
+        self.lines = lines;
+        self.scratch.resize(blocks * self.scratch_len, Complex::new(0.0, 0.0));
+        self.partial.resize(blocks, [0.0; 2]);
+        self.tops.resize(blocks * self.nx, 0.0);
+        self.prods.resize(blocks * self.nx, 0.0);
     }
 
     /// Takes the coefficients of `a` if it qualifies with the same shape and sides (no
@@ -543,6 +600,8 @@ impl Transform {
             scratch,
             scratch_len,
             partial,
+            tops,
+            prods,
             ..
         } = self;
         let (nx, ny, sl, lx) = (*nx, *ny, *scratch_len, *lines);
@@ -569,11 +628,14 @@ impl Transform {
         // The inverse transform returns nx times the line, hence the scale.
         let scale = 1.0 / nx as f64;
         let xp = SyncPtr(x.as_mut_ptr());
+        let (tp, pp) = (SyncPtr(tops.as_mut_ptr()), SyncPtr(prods.as_mut_ptr()));
         let ty = &*ty;
         columns.par_iter().for_each(|&(k0, w)| {
-            // SAFETY: the column ranges are disjoint and inside the nx * ny field at `xp`.
-            unsafe { ty.solve_columns(xp, k0, w, scale) }
+            // SAFETY: the column ranges are disjoint and inside the nx * ny field at `xp` and
+            // the nx-wide per-block rows at `tp` and `pp`.
+            unsafe { ty.forward(xp, (k0, w), scale, lx, tp, pp) }
         });
+        let tops: &[f64] = tops;
         let res_row = |j: usize, xs: &[f64], xm: &[f64], xn: &[f64]| {
             let c = j * nx..(j + 1) * nx;
             compact::residual_row_sq(&comp.k, comp.rows[j], &comp.flags[c.clone()], xs, xm, xn, &b[c])
@@ -584,6 +646,8 @@ impl Transform {
             .enumerate()
             .for_each(|(blk, ((rows, s), part))| {
                 let (z, fs) = s.split_at_mut(nx);
+                let above = tops.get((blk + 1) * nx..(blk + 2) * nx);
+                ty.back_block(rows, blk * lx, above);
                 let h = rows.len() / nx;
                 let mut rr = 0.0;
                 let mut t = 0;
@@ -625,6 +689,14 @@ struct SyncPtr(*mut f64);
 unsafe impl Send for SyncPtr {}
 // SAFETY: as above.
 unsafe impl Sync for SyncPtr {}
+
+impl SyncPtr {
+    /// The pointer (a method, so closures capture the whole `Send` wrapper).
+    #[inline(always)]
+    fn ptr(self) -> *mut f64 {
+        self.0
+    }
+}
 
 #[cfg(test)]
 mod tests {
@@ -746,6 +818,33 @@ mod tests {
                     }
                 }
             }
+        }
+    }
+
+    /// The block-wise back substitution gives the same solution for any block height,
+    /// including a short last block and one block for the whole field.
+    #[test]
+    fn block_height_does_not_matter() {
+        let (nx, ny) = (29, 41);
+        let grid = Grid::new(nx, ny, 1.0, 1.0, 0.0, 0.0).unwrap();
+        let mask = Mask::all_water(&grid);
+        let mut sides = Sides::closed();
+        sides.north = crate::solve::SideCoupling::Dirichlet;
+        let a = Stencil5::diffusion(&grid, &mask, sides, 6.0, 9.0).unwrap();
+        let b: Vec<f64> = (0..nx * ny).map(|k| ((k * 29) % 13) as f64 - 6.0).collect();
+        let mut t = Transform::new(&a).expect("qualifies");
+        let mut first: Option<Vec<f64>> = None;
+        for lines in [42, 2, 4, 6, 10, 40] {
+            t.set_lines(lines);
+            let mut x = vec![0.0; nx * ny];
+            let (bb, rr) = t.solve(&a, &b, &mut x);
+            let bn = bb.sqrt();
+            let rel = a.residual_sq(&b, &x).sqrt() / bn;
+            assert!(rel < 1e-13, "blocks of {lines} rows: residual {rel:e}");
+            assert!((rr.sqrt() / bn - rel).abs() <= 1e-3 * rel + 1e-18);
+            let one = first.get_or_insert_with(|| x.clone());
+            let diff = x.iter().zip(one.iter()).map(|(p, q)| (p - q).abs()).fold(0.0, f64::max);
+            assert!(diff < 1e-12, "blocks of {lines} rows: differs by {diff:e}");
         }
     }
 
