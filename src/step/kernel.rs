@@ -429,37 +429,17 @@ fn block<K: LimiterKernel, const MASKED: bool, const BASE: bool, const PIECED: b
             }
             sums.bad |= bad;
             fs.copy_from_slice(fnr);
-        } else if !PIECED {
-            // Fused: each north face flux is computed, used, and kept as the next south flux.
-            x_faces::<K, MASKED>(m, src, (j, 0), p.factor, coef_x, sd, &mut fx[..nx + 1]);
-            if let Some(f) = west {
-                fx[0] = f;
-            }
-            if let Some(f) = east {
-                fx[nx] = f;
-            }
-            let y = YRows::new(m, src, j + 1).window(0, nx);
-            let (fxw, fxe) = (&fx[..nx], &fx[1..nx + 1]);
-            let mut bad = false;
-            for i in 0..nx {
-                let fn_i = y.flux::<K, MASKED>(i, p.factor, coef_y, sd);
-                let v = update(c[i], bs[i], fxe[i] - fxw[i], fn_i - fs[i]);
-                bad |= !(v.abs() <= limit);
-                o[i] = v;
-                fs[i] = fn_i;
-            }
-            sums.bad |= bad;
         } else {
-            // Fused, in pieces of PIECE cells: the piece's x-face fluxes into a short buffer,
-            // then each north face flux is computed, used, and kept as the next south flux.
-            // Meanwhile the inputs the next row of the block will need for the same piece are
-            // prefetched, so memory is read at an even pace instead of in bursts that the
-            // hardware prefetcher restarts at every page.
+            // Fused: the x-face fluxes of a piece of the row (the whole row unless PIECED)
+            // into the face buffer, then each north face flux is computed, used, and kept as
+            // the next south flux. When PIECED, the inputs the next row of the block will need
+            // for the same piece are prefetched meanwhile, so memory is read at an even pace
+            // instead of in bursts that the hardware prefetcher restarts at every page.
             let y = YRows::new(m, src, j + 1);
-            let ahead = r + 1 < rows;
+            let (piece, ahead) = if PIECED { (PIECE, r + 1 < rows) } else { (nx, false) };
             let mut bad = false;
-            for i0 in (0..nx).step_by(PIECE) {
-                let nb = PIECE.min(nx - i0);
+            for i0 in (0..nx).step_by(piece) {
+                let nb = piece.min(nx - i0);
                 if ahead {
                     // The next row reads cell row j + 3 (its north faces' far cells), its own
                     // x-face velocities, the velocities of face row j + 2, and writes its output.
