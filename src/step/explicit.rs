@@ -48,11 +48,12 @@ pub(crate) fn sweep(
     p: StageParams,
 ) -> kernel::BlockSums {
     let masked = m.has_land();
+    let pieced = kernel::pieced(m.grid.nx);
     crate::with_limiter!(limiter, K => {
         if masked {
-            kernel::stage::<K, true>(m, src, base, out, blocks, rows_per_block, p)
+            kernel::stage::<K, true>(m, src, base, out, blocks, rows_per_block, p, pieced)
         } else {
-            kernel::stage::<K, false>(m, src, base, out, blocks, rows_per_block, p)
+            kernel::stage::<K, false>(m, src, base, out, blocks, rows_per_block, p, pieced)
         }
     });
     let mut total = kernel::BlockSums::default();

@@ -69,24 +69,15 @@ pub(crate) struct StageParams {
     pub diffusion: f64,
 }
 
-/// Runs one stage over all row blocks. `src` must have its ghosts filled.
-pub(crate) fn stage<K: LimiterKernel, const MASKED: bool>(
-    m: &Model,
-    src: &[f64],
-    base: &[f64],
-    out: &mut [f64],
-    blocks: &mut [Block],
-    rows_per_block: usize,
-    p: StageParams,
-) {
-    let pieced = m.grid.nx >= PIECED_FROM;
-    stage_with::<K, MASKED>(m, src, base, out, blocks, rows_per_block, p, pieced);
+/// Whether rows of `nx` cells are swept in prefetched pieces (see [`PIECED_FROM`]).
+pub(crate) fn pieced(nx: usize) -> bool {
+    nx >= PIECED_FROM
 }
 
-/// [`stage`] with the row sweep chosen: in prefetched pieces or whole rows (the same
-/// arithmetic, bit for bit).
+/// Runs one stage over all row blocks, the rows swept in prefetched pieces or whole (the
+/// same arithmetic, bit for bit; [`pieced`] chooses). `src` must have its ghosts filled.
 #[allow(clippy::too_many_arguments)]
-fn stage_with<K: LimiterKernel, const MASKED: bool>(
+pub(crate) fn stage<K: LimiterKernel, const MASKED: bool>(
     m: &Model,
     src: &[f64],
     base: &[f64],
@@ -615,7 +606,7 @@ mod tests {
         [false, true].map(|pieced| {
             let mut out = vec![f64::NAN; g.padded_len()];
             let mut blocks: Vec<Block> = (0..g.ny.div_ceil(rows)).map(|_| Block::new(g.nx)).collect();
-            stage_with::<VanLeer, MASKED>(&m, &c, &base, &mut out, &mut blocks, rows, p, pieced);
+            stage::<VanLeer, MASKED>(&m, &c, &base, &mut out, &mut blocks, rows, p, pieced);
             (out, blocks.iter().map(|b| b.sums).collect())
         })
     }
