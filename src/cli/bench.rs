@@ -110,12 +110,17 @@ pub fn main(a: BenchArgs) -> Result<(), Failure> {
 /// The implicit diffusion step: median milliseconds per step, iterations and set-up per size,
 /// and the time ratio between consecutive sizes, for the solver `Method::Auto` picks on this
 /// problem (the exact transform solver) and for multigrid-preconditioned conjugate gradients
-/// (what runs with land or periodic sides use).
+/// (what runs with land or periodic sides use). The sizes' steps are interleaved, so the
+/// ratio is also given step by step (the median of the per-step ratios), which a drifting
+/// machine load affects least.
 fn implicit_bench(sizes: &[usize], steps: usize) -> Result<(), Failure> {
-    use tinct::solve::bench::implicit_diffusion;
+    use tinct::solve::bench::{implicit_diffusion_sizes, median_step_ratio};
     use tinct::solve::{Method, SolverParams};
+    if let Some(n) = sizes.iter().find(|&&n| n < 16) {
+        return Err(bad_input(format!("--sizes: {n} is too small (at least 16)")));
+    }
     println!(
-        "implicit backward-Euler diffusion, diffusion number 10, zero-flux sides, rtol 1e-10; {} thread(s)",
+        "implicit backward-Euler diffusion, diffusion number 10, zero-flux sides, rtol 1e-10; {} thread(s); sizes interleaved in rounds",
         rayon::current_num_threads()
     );
     println!(
@@ -127,32 +132,32 @@ fn implicit_bench(sizes: &[usize], steps: usize) -> Result<(), Failure> {
             method,
             ..SolverParams::default()
         };
-        let mut prev: Option<(usize, f64)> = None;
-        for &n in sizes {
-            if n < 16 {
-                return Err(bad_input(format!("--sizes: {n} is too small (at least 16)")));
-            }
-            let r = implicit_diffusion(n, steps.max(1), 10.0, params).map_err(|e| failed(e.to_string()))?;
-            let ms = |v: f64| 1e3 * v;
+        let runs = implicit_diffusion_sizes(sizes, steps.max(1), 10.0, params).map_err(|e| failed(e.to_string()))?;
+        let ms = |v: f64| 1e3 * v;
+        for (k, r) in runs.iter().enumerate() {
             let lo = r.seconds.iter().cloned().fold(f64::INFINITY, f64::min);
             let hi = r.seconds.iter().cloned().fold(0.0, f64::max);
             println!(
-                "{:>14} {n:>6} {:>12.2} {:>10.2} {:>10.2} {:>11.1} {:>14.1}",
+                "{:>14} {:>6} {:>12.2} {:>10.2} {:>10.2} {:>11.1} {:>14.1}",
                 r.method.name(),
+                r.n,
                 ms(r.median_seconds()),
                 ms(lo),
                 ms(hi),
                 r.median_iterations(),
                 ms(r.setup_seconds)
             );
-            if let Some((n0, t0)) = prev {
+            if k > 0 {
+                let p = &runs[k - 1];
                 println!(
-                    "{:>14} time ratio N = {n} / N = {n0}: {:.2}",
+                    "{:>14} time ratio N = {} / N = {}: {:.2} (medians), {:.2} (median of per-step ratios)",
                     "",
-                    r.median_seconds() / t0
+                    r.n,
+                    p.n,
+                    r.median_seconds() / p.median_seconds(),
+                    median_step_ratio(p, r)
                 );
             }
-            prev = Some((n, r.median_seconds()));
         }
     }
     Ok(())
