@@ -584,10 +584,11 @@ impl Transform {
     /// `x = A^-1 b` for the operator `a` the solver was built or refreshed for (no
     /// allocation); returns `(b . b, ||b - A x||^2)`, both summed per row block in block order.
     /// Three parallel passes over `x`: blocks of rows of `b` transformed along x into `x`
-    /// (and `b . b` summed); column ranges solved along y, every mode at once, by forward
-    /// elimination and back substitution (contiguous rows, so the loops vectorise across
-    /// modes); blocks of rows transformed back along x and their residual rows summed while
-    /// in cache (a block's first and last rows, whose neighbours another block writes,
+    /// (and `b . b` summed); column ranges eliminated forward along y, every mode at once
+    /// (contiguous rows, so the loops vectorise across modes), with the per-block sums that
+    /// decouple the back substitution (see [`Tridiag::forward`]); blocks of rows
+    /// back-substituted, transformed back along x and their residual rows summed while in
+    /// cache (a block's first and last rows, whose neighbours another block writes,
     /// afterwards).
     pub fn solve(&mut self, a: &Stencil5, b: &[f64], x: &mut [f64]) -> (f64, f64) {
         let Self {
