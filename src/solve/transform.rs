@@ -433,8 +433,6 @@ impl Tridiag {
 pub(crate) struct Transform {
     nx: usize,
     ny: usize,
-    m: f64,
-    gy: f64,
     x: Axis,
     y: Tridiag,
     /// Fixed values at the south and north ends.
@@ -535,8 +533,6 @@ impl Transform {
         Some(Self {
             nx,
             ny,
-            m: c.k.m,
-            gy: c.k.gy,
             x,
             y,
             south,
@@ -573,11 +569,9 @@ impl Transform {
         if !(same && c.k.m > 0.0 && c.k.gy >= 0.0) {
             return false;
         }
-        self.m = c.k.m;
-        self.gy = c.k.gy;
         self.x.set_coupling(c.k.cx);
         self.y
-            .factor(self.m, &self.x.lam, c.k.cy, self.gy, self.south, self.north);
+            .factor(c.k.m, &self.x.lam, c.k.cy, c.k.gy, self.south, self.north);
         true
     }
 
