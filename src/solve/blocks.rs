@@ -109,24 +109,53 @@ const LINE: usize = 64;
 /// effect on results; a no-op on targets other than x86-64).
 #[inline(always)]
 pub(crate) fn prefetch_part<T>(v: &[T], part: usize, parts: usize) {
+    let bytes = std::mem::size_of_val(v);
+    let piece = bytes.div_ceil(parts.max(1)).div_ceil(LINE) * LINE;
+    let (start, end) = ((part * piece).min(bytes), ((part + 1) * piece).min(bytes));
+    prefetch_lines::<T, L1>(v, start, end);
+}
+
+/// Software prefetch into L2 of every cache line `v` spans, the line of its last value
+/// included when `v` does not start on a line boundary (a hint only, as [`prefetch_part`]).
+#[inline(always)]
+pub(crate) fn prefetch_l2<T>(v: &[T]) {
+    let bytes = std::mem::size_of_val(v);
+    prefetch_lines::<T, L2>(v, 0, bytes);
+    if bytes > 0 {
+        prefetch_lines::<T, L2>(v, bytes - 1, bytes);
+    }
+}
+
+/// Prefetch hint into L1.
+#[cfg(target_arch = "x86_64")]
+const L1: i32 = std::arch::x86_64::_MM_HINT_T0;
+/// Prefetch hint into L2.
+#[cfg(target_arch = "x86_64")]
+const L2: i32 = std::arch::x86_64::_MM_HINT_T1;
+#[cfg(not(target_arch = "x86_64"))]
+const L1: i32 = 0;
+#[cfg(not(target_arch = "x86_64"))]
+const L2: i32 = 0;
+
+/// Prefetches with hint `HINT` the lines at byte offsets `start, start + LINE, ..` below `end`
+/// of `v` (`end <= ` its size in bytes).
+#[inline(always)]
+fn prefetch_lines<T, const HINT: i32>(v: &[T], start: usize, end: usize) {
     #[cfg(target_arch = "x86_64")]
     {
-        use std::arch::x86_64::{_mm_prefetch, _MM_HINT_T0};
-        let bytes = std::mem::size_of_val(v);
-        let piece = bytes.div_ceil(parts.max(1)).div_ceil(LINE) * LINE;
-        let (start, end) = ((part * piece).min(bytes), ((part + 1) * piece).min(bytes));
+        use std::arch::x86_64::_mm_prefetch;
         let p = v.as_ptr().cast::<i8>();
         let mut o = start;
         while o < end {
-            // SAFETY: o < bytes, so the address is inside `v`; a prefetch never faults and
-            // reads or writes nothing.
-            unsafe { _mm_prefetch::<_MM_HINT_T0>(p.add(o)) };
+            // SAFETY: o < end <= the size of `v` in bytes, so the address is inside `v`; a
+            // prefetch never faults and reads or writes nothing.
+            unsafe { _mm_prefetch::<HINT>(p.add(o)) };
             o += LINE;
         }
     }
     #[cfg(not(target_arch = "x86_64"))]
     {
-        let _ = (v, part, parts);
+        let _ = (v, start, end);
     }
 }
 

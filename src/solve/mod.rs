@@ -28,7 +28,7 @@
 //! ```
 
 pub mod bench;
-mod blocks;
+pub(crate) mod blocks;
 mod compact;
 pub mod krylov;
 pub mod multigrid;

@@ -18,6 +18,7 @@ use crate::model::Model;
 use crate::ops::boundary::{side_flux, Side, SideKind};
 use crate::ops::convection;
 use crate::ops::limiter::LimiterKernel;
+use crate::solve::blocks::prefetch_l2;
 use rayon::prelude::*;
 
 /// Per-block results of one stage.
@@ -112,34 +113,6 @@ const PIECED_FROM: usize = 1536;
 
 /// Cells per piece of a row in the fused sweep (eight cache lines of `f64`).
 const PIECE: usize = 64;
-
-/// Software prefetch of the cache lines spanned by `v` (a hint: no effect on results; a no-op
-/// off x86-64).
-#[inline(always)]
-fn prefetch_piece(v: &[f64]) {
-    #[cfg(target_arch = "x86_64")]
-    {
-        use std::arch::x86_64::{_mm_prefetch, _MM_HINT_T1};
-        let p = v.as_ptr().cast::<i8>();
-        let bytes = std::mem::size_of_val(v);
-        let mut o = 0;
-        while o < bytes {
-            // SAFETY: o < bytes, so the address is inside `v`; a prefetch never faults and
-            // reads or writes nothing.
-            unsafe { _mm_prefetch::<_MM_HINT_T1>(p.add(o)) };
-            o += 64;
-        }
-        if bytes > 0 {
-            // The line of the last value, when `v` does not start on a line boundary.
-            // SAFETY: as above.
-            unsafe { _mm_prefetch::<_MM_HINT_T1>(p.add(bytes - 1)) };
-        }
-    }
-    #[cfg(not(target_arch = "x86_64"))]
-    {
-        let _ = v;
-    }
-}
 
 #[inline(always)]
 fn wet_f(w: u8) -> f64 {
@@ -381,6 +354,18 @@ fn block<K: LimiterKernel, const MASKED: bool, const BASE: bool, const PIECED: b
         let (cur, later) = chunk.split_at_mut((r + 1) * s);
         let o = &mut cur[r * s + 2..r * s + 2 + nx];
         let fs = &mut fys[..nx];
+        // x-face fluxes of faces i0 .. i0 + f.len() of this row, the side faces replaced by
+        // the side conditions.
+        let faces = |i0: usize, f: &mut [f64]| {
+            x_faces::<K, MASKED>(m, src, (j, i0), p.factor, coef_x, sd, f);
+            let last = f.len() - 1;
+            if let (0, Some(w)) = (i0, west) {
+                f[0] = w;
+            }
+            if let (true, Some(e)) = (i0 + last == nx, east) {
+                f[last] = e;
+            }
+        };
         let update = |c: f64, bs: f64, dfx: f64, dfy: f64| -> f64 {
             let v = c - dtdx * dfx - dtdy * dfy;
             if BASE {
@@ -391,13 +376,7 @@ fn block<K: LimiterKernel, const MASKED: bool, const BASE: bool, const PIECED: b
         };
         if j + 1 == ny && b.north != SideKind::Periodic {
             // North side row: side fluxes first, then the update.
-            x_faces::<K, MASKED>(m, src, (j, 0), p.factor, coef_x, sd, &mut fx[..nx + 1]);
-            if let Some(f) = west {
-                fx[0] = f;
-            }
-            if let Some(f) = east {
-                fx[nx] = f;
-            }
+            faces(0, &mut fx[..nx + 1]);
             y_faces::<K, MASKED>(m, src, j + 1, p.factor, coef_y, sd, fyn);
             let qn = g.idx(0, ny as isize);
             side_row(
@@ -434,25 +413,15 @@ fn block<K: LimiterKernel, const MASKED: bool, const BASE: bool, const PIECED: b
                 if ahead {
                     // The next row reads cell row j + 3 (its north faces' far cells), its own
                     // x-face velocities, the velocities of face row j + 2, and writes its output.
-                    prefetch_piece(&src[q + 3 * s + i0..q + 3 * s + i0 + nb]);
-                    prefetch_piece(&m.flow.u[q + s + i0..q + s + i0 + nb + 1]);
-                    prefetch_piece(&m.flow.v[q + 2 * s + i0..q + 2 * s + i0 + nb]);
+                    prefetch_l2(&src[q + 3 * s + i0..q + 3 * s + i0 + nb]);
+                    prefetch_l2(&m.flow.u[q + s + i0..q + s + i0 + nb + 1]);
+                    prefetch_l2(&m.flow.v[q + 2 * s + i0..q + 2 * s + i0 + nb]);
                     if let Some(next) = later.get(2 + i0..2 + i0 + nb) {
-                        prefetch_piece(next);
+                        prefetch_l2(next);
                     }
                 }
                 let fxb = &mut fx[..nb + 1];
-                x_faces::<K, MASKED>(m, src, (j, i0), p.factor, coef_x, sd, fxb);
-                if i0 == 0 {
-                    if let Some(f) = west {
-                        fxb[0] = f;
-                    }
-                }
-                if i0 + nb == nx {
-                    if let Some(f) = east {
-                        fxb[nb] = f;
-                    }
-                }
+                faces(i0, fxb);
                 let yb = y.window(i0, nb);
                 let (fxw, fxe) = (&fxb[..nb], &fxb[1..nb + 1]);
                 let (cb, bsb) = (&c[i0..i0 + nb], &bs[i0..i0 + nb]);
