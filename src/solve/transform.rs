@@ -519,64 +519,120 @@ impl Tridiag {
         }
     }
 
-    /// Forward elimination of modes `k0 .. k0 + w` (`cols`) in place on the reduced rows of the
-    /// row-major field at `x` (rows of `nx`; reduced row `i` is field row `2 i + 1`), the
-    /// right-hand side scaled by `s`: `g_i = (s f_i + c g_{i-1}) / p_i`.
-    /// On the way it prepares the back substitution `u_i = g_i + e_i u_{i+1}`
-    /// (`e_i = c / p_i`) to run block by block (blocks of `lines` reduced rows): per block `B`
-    /// with rows `i0 .. i1` it sums `S_B = sum_i P_i g_i` and `P_B = P_{i1}`, where
-    /// `P_{i0} = 1` and `P_{i+1} = P_i e_i`, so that `u_{i0} = S_B + P_B u_{i1}`; a sweep down
-    /// the blocks then leaves in `tops` row `B` the value `u` of row `i0` of block `B`, from
-    /// which [`Self::back_block`] finishes block `B - 1` without the others. `tops` and `prods`
-    /// hold one row of `nx` per block.
+    /// Forward elimination within one block of reduced rows, in place on `rows` (field rows
+    /// from an even row on, so the odd ones are reduced rows `i0 ..`), as if the row before
+    /// the block were zero, with the right-hand side scaled by `s`:
+    /// `h_i = (s f_i + c h_{i-1}) / p_i`. The true forward values are
+    /// `g_i = h_i + E_i G` with `G` the block below's last `g`, `E_i = e_{i0} ... e_i` and
+    /// `e_i = c / p_i` (the partition method: blocks eliminate independently and are linked
+    /// by a short sweep, [`Self::link`]). For the back substitution `u_i = g_i + e_i u_{i+1}`
+    /// it sums, for all modes, `H = sum_i P_i h_i`, `K = sum_i P_i P_{i+1}` and `P = P_{i1}`
+    /// with `P_{i0} = 1`, `P_{i+1} = P_i e_i`, so that the block's first `u` is
+    /// `H + K G + P u_{i1}`.
+    fn eliminate_block(&self, rows: &mut [f64], i0: usize, s: f64, sums: [&mut [f64]; 3]) {
+        let (nx, c) = (self.last.len(), self.c);
+        let [sh, sk, sp] = sums;
+        sh.fill(0.0);
+        sk.fill(0.0);
+        sp.fill(1.0);
+        let mut prev: Option<&[f64]> = None;
+        for (t, g) in rows.chunks_exact_mut(nx).enumerate().skip(1).step_by(2) {
+            let piv = self.pivots(i0 + t / 2);
+            match prev {
+                None => {
+                    for (v, &p) in g.iter_mut().zip(piv) {
+                        *v *= s * p;
+                    }
+                }
+                Some(q) => {
+                    for ((v, &q), &p) in g.iter_mut().zip(q).zip(piv) {
+                        *v = (s * *v + c * q) * p;
+                    }
+                }
+            }
+            for ((((h, k), f), &v), &p) in sh.iter_mut().zip(sk.iter_mut()).zip(sp.iter_mut()).zip(&*g).zip(piv) {
+                let next = *f * (c * p);
+                *h += *f * v;
+                *k += *f * next;
+                *f = next;
+            }
+            prev = Some(g);
+        }
+    }
+
+    /// Links the blocks of modes `k0 .. k0 + w` after [`Self::eliminate_block`]: up the
+    /// blocks, each block's incoming `G` (the block below's last `g`: `G_0 = 0`,
+    /// `G_{B+1} = h_last + P_B G_B`) into `incoming`; then down the blocks, each block's first
+    /// `u` (`H + K G + P u` of the block above's first row) into `firsts`, which held `H`.
     ///
     /// # Safety
-    /// `x` must point to `nx * ny` values and `tops`, `prods` to `nx` times the block count,
-    /// `k0 + w <= nx`, and no other thread may access columns `k0 .. k0 + w` of any of them
-    /// meanwhile.
-    unsafe fn forward(&self, x: SyncPtr, (k0, w): (usize, usize), s: f64, lines: usize, tops: SyncPtr, prods: SyncPtr) {
-        let (nx, n, c) = (self.last.len(), self.n, self.c);
+    /// `x` must point to `nx * ny` values and `firsts`, `cross`, `prods`, `incoming` to `nx`
+    /// times the block count, `k0 + w <= nx`, and no other thread may access columns
+    /// `k0 .. k0 + w` of any of them meanwhile.
+    #[allow(clippy::too_many_arguments)]
+    unsafe fn link(
+        &self,
+        x: SyncPtr,
+        (k0, w): (usize, usize),
+        lines: usize,
+        firsts: SyncPtr,
+        cross: SyncPtr,
+        prods: SyncPtr,
+        incoming: SyncPtr,
+    ) {
+        let (nx, n) = (self.last.len(), self.n);
         // SAFETY: row j's part lies inside its array and belongs to this caller alone; the
         // parts borrowed at once are different rows or different arrays.
         let part = |p: SyncPtr, j: usize| unsafe { std::slice::from_raw_parts_mut(p.ptr().add(j * nx + k0), w) };
         let blocks = n.div_ceil(lines);
-        for blk in 0..blocks {
-            let (sum, prod) = (part(tops, blk), part(prods, blk));
-            sum.fill(0.0);
-            prod.fill(1.0);
-            for i in blk * lines..((blk + 1) * lines).min(n) {
-                let (g, piv) = (part(x, 2 * i + 1), &self.pivots(i)[k0..k0 + w]);
-                if i == 0 {
-                    for (v, &p) in g.iter_mut().zip(piv) {
-                        *v *= s * p;
-                    }
-                } else {
-                    let prev = &*part(x, 2 * i - 1);
-                    for ((v, &q), &p) in g.iter_mut().zip(prev).zip(piv) {
-                        *v = (s * *v + c * q) * p;
-                    }
-                }
-                for (((t, f), &v), &p) in sum.iter_mut().zip(prod.iter_mut()).zip(&*g).zip(piv) {
-                    *t += *f * v;
-                    *f *= c * p;
-                }
+        part(incoming, 0).fill(0.0);
+        for blk in 0..blocks.saturating_sub(1) {
+            let last = ((blk + 1) * lines).min(n) - 1;
+            let (h, p, g, next) = (
+                &*part(x, 2 * last + 1),
+                &*part(prods, blk),
+                &*part(incoming, blk),
+                part(incoming, blk + 1),
+            );
+            for (((o, &h), &p), &g) in next.iter_mut().zip(h).zip(p).zip(g) {
+                *o = h + p * g;
             }
         }
-        // u at the first row of each block, from the top block down (nothing above row n - 1).
-        for blk in (0..blocks.saturating_sub(1)).rev() {
-            let (up, sum, prod) = (&*part(tops, blk + 1), part(tops, blk), &*part(prods, blk));
-            for ((t, &f), &u) in sum.iter_mut().zip(prod).zip(up) {
-                *t += f * u;
+        for blk in (0..blocks).rev() {
+            let (u, k, g) = (part(firsts, blk), &*part(cross, blk), &*part(incoming, blk));
+            for ((u, &k), &g) in u.iter_mut().zip(k).zip(g) {
+                *u += k * g;
+            }
+            if blk + 1 < blocks {
+                let (u, p, up) = (part(firsts, blk), &*part(prods, blk), &*part(firsts, blk + 1));
+                for ((u, &p), &a) in u.iter_mut().zip(p).zip(up) {
+                    *u += p * a;
+                }
             }
         }
     }
 
-    /// Back substitution of the reduced rows among `rows` (field rows from an even row on,
-    /// so the odd ones; the first is reduced row `i0`), after [`Self::forward`], with `above`
-    /// the value `u` of the reduced row after them (`None` at the top of the field):
-    /// `u_i = g_i + (c / p_i) u_{i+1}`, from the top row down.
-    fn back_block(&self, rows: &mut [f64], i0: usize, above: Option<&[f64]>) {
+    /// Finishes the reduced rows among `rows` (as in [`Self::eliminate_block`], first reduced
+    /// row `i0`): `g_i = h_i + E_i G` with `incoming` the block's `G`, then the back
+    /// substitution `u_i = g_i + (c / p_i) u_{i+1}` from the top row down, with `above` the
+    /// value `u` of the reduced row after them (`None` at the top of the field). `e` is
+    /// scratch.
+    fn back_block(&self, rows: &mut [f64], i0: usize, incoming: &[f64], above: Option<&[f64]>, e: &mut [f64]) {
         let (nx, c) = (self.last.len(), self.c);
+        if i0 > 0 {
+            e.fill(1.0);
+            for (t, g) in rows.chunks_exact_mut(nx).enumerate().skip(1).step_by(2) {
+                for (((v, f), &p), &a) in g
+                    .iter_mut()
+                    .zip(e.iter_mut())
+                    .zip(self.pivots(i0 + t / 2))
+                    .zip(incoming)
+                {
+                    *f *= c * p;
+                    *v += *f * a;
+                }
+            }
+        }
         let mut next: Option<&[f64]> = above;
         for (t, u) in rows.chunks_exact_mut(nx).enumerate().skip(1).step_by(2).rev() {
             if let Some(q) = next {
@@ -615,10 +671,13 @@ pub(crate) struct Transform {
     lines_scratch: Vec<f64>,
     /// Per row block: partial sums of `b . b` and of the squared residual.
     partial: Vec<[f64; 2]>,
-    /// Per block of reduced rows, all modes: `u` at its first row, and the product of the
-    /// `e_i` of its rows (see [`Tridiag::forward`]).
-    tops: Vec<f64>,
+    /// Per block of reduced rows, all modes (see [`Tridiag::eliminate_block`] and
+    /// [`Tridiag::link`]): `H` and then `u` at its first row, `K`, the product `P` of its
+    /// `e_i`, and the incoming `G`.
+    firsts: Vec<f64>,
+    cross: Vec<f64>,
     prods: Vec<f64>,
+    incoming: Vec<f64>,
 }
 
 /// How `c` (on `nx` by `ny` cells, not periodic) ends: the x ends as a pair and whether the
@@ -709,8 +768,10 @@ impl Transform {
             scratch_len: 0,
             lines_scratch: Vec::new(),
             partial: Vec::new(),
-            tops: Vec::new(),
+            firsts: Vec::new(),
+            cross: Vec::new(),
             prods: Vec::new(),
+            incoming: Vec::new(),
         };
         t.set_lines(lines);
         t.refresh(a).then_some(t)
@@ -725,8 +786,9 @@ impl Transform {
         self.scratch.resize(blocks * self.scratch_len, Complex::new(0.0, 0.0));
         self.lines_scratch.resize(blocks * 4 * self.nx, 0.0);
         self.partial.resize(blocks, [0.0; 2]);
-        self.tops.resize(blocks * self.nx, 0.0);
-        self.prods.resize(blocks * self.nx, 0.0);
+        for v in [&mut self.firsts, &mut self.cross, &mut self.prods, &mut self.incoming] {
+            v.resize(blocks * self.nx, 0.0);
+        }
     }
 
     /// Takes the coefficients of `a` if it qualifies with the same shape and sides (no
@@ -755,12 +817,14 @@ impl Transform {
     /// One step of cyclic reduction in y first (FACR(1): Hockney 1970, Methods in
     /// Computational Physics 9, 135-211; Swarztrauber 1977, SIAM Review 19, 490-501): only the
     /// odd rows are transformed, and the even ones are recovered by tridiagonal solves along x.
-    /// Four parallel passes: blocks of rows form the odd rows' reduced right-hand sides and
-    /// transform them along x (and sum `b . b`); column ranges eliminate forward along the
-    /// odd rows, every mode at once, with the per-block sums that decouple the back
-    /// substitution (see [`Tridiag::forward`]); blocks of rows back-substitute, transform
-    /// back, solve their even rows but the first along x and sum their residual rows while in
-    /// cache; and each block's first row is solved and the rows around it summed last.
+    /// Two passes over the field, with short ones between and after: blocks of rows form the
+    /// odd rows' reduced right-hand sides, transform them along x (and sum `b . b`) and
+    /// eliminate them along y while in cache, as if the block below were zero (every mode at
+    /// once, so the loops vectorise); column ranges link the blocks (one row per block, see
+    /// [`Tridiag::link`]); blocks of rows finish the elimination and back-substitute,
+    /// transform back, solve their even rows but the first along x and sum their residual
+    /// rows while in cache; and each block's first row is solved and the rows around it
+    /// summed last.
     pub fn solve(&mut self, a: &Stencil5, b: &[f64], x: &mut [f64]) -> (f64, f64) {
         let Self {
             nx,
@@ -775,8 +839,10 @@ impl Transform {
             scratch_len,
             lines_scratch,
             partial,
-            tops,
+            firsts,
+            cross,
             prods,
+            incoming,
             ..
         } = self;
         let (nx, ny, sl, lx, cy) = (*nx, *ny, *scratch_len, *lines, *cy);
@@ -785,12 +851,21 @@ impl Transform {
         };
         let (ax, xl, ty) = (&*ax, &*xl, &*ty);
         let brow = |j: usize| &b[j * nx..(j + 1) * nx];
+        // The inverse transform returns nx times the line, hence the scale.
+        let scale = 1.0 / nx as f64;
+        let hr = lx / 2;
         x.par_chunks_mut(lx * nx)
             .zip(scratch.par_chunks_mut(sl))
             .zip(lines_scratch.par_chunks_mut(4 * nx))
             .zip(partial.par_iter_mut())
+            .zip(
+                firsts
+                    .par_chunks_mut(nx)
+                    .zip(cross.par_chunks_mut(nx))
+                    .zip(prods.par_chunks_mut(nx)),
+            )
             .enumerate()
-            .for_each(|(blk, (((rows, s), w), part))| {
+            .for_each(|(blk, ((((rows, s), w), part), ((sh, sk), sp)))| {
                 let (z, fs) = s.split_at_mut(nx);
                 let (ra, w) = w.split_at_mut(nx);
                 let (rb, w) = w.split_at_mut(nx);
@@ -829,31 +904,34 @@ impl Transform {
                     }
                     t += 4;
                 }
+                // The block's elimination along y while its rows are in cache.
+                ty.eliminate_block(rows, blk * hr, scale, [sh, sk, sp]);
             });
-        // The inverse transform returns nx times the line, hence the scale.
-        let scale = 1.0 / nx as f64;
         let xp = SyncPtr(x.as_mut_ptr());
-        let (tp, pp) = (SyncPtr(tops.as_mut_ptr()), SyncPtr(prods.as_mut_ptr()));
-        let hr = lx / 2;
+        let rblocks = ty.n.div_ceil(hr);
+        let ptrs = [&mut *firsts, &mut *cross, &mut *prods, &mut *incoming].map(|v| SyncPtr(v.as_mut_ptr()));
         columns.par_iter().for_each(|&(k0, w)| {
             // SAFETY: the column ranges are disjoint and inside the nx * ny field at `xp` and
-            // the nx-wide per-block rows at `tp` and `pp`.
-            unsafe { ty.forward(xp, (k0, w), scale, hr, tp, pp) }
+            // the nx-wide per-block rows of the four sums.
+            unsafe { ty.link(xp, (k0, w), hr, ptrs[0], ptrs[1], ptrs[2], ptrs[3]) }
         });
-        let tops: &[f64] = tops;
-        let rblocks = ty.n.div_ceil(hr);
+        let (firsts, incoming): (&[f64], &[f64]) = (firsts, incoming);
         let res_row = |j: usize, xs: &[f64], xm: &[f64], xn: &[f64]| {
             let c = j * nx..(j + 1) * nx;
             compact::residual_row_sq(&comp.k, comp.rows[j], &comp.flags[c.clone()], xs, xm, xn, &b[c])
         };
         x.par_chunks_mut(lx * nx)
             .zip(scratch.par_chunks_mut(sl))
+            .zip(lines_scratch.par_chunks_mut(4 * nx))
             .zip(partial.par_iter_mut())
             .enumerate()
-            .for_each(|(blk, ((rows, s), part))| {
+            .for_each(|(blk, (((rows, s), w), part))| {
                 let (z, fs) = s.split_at_mut(nx);
-                let above = (blk + 1 < rblocks).then(|| &tops[(blk + 1) * nx..(blk + 2) * nx]);
-                ty.back_block(rows, blk * hr, above);
+                if blk < rblocks {
+                    let above = (blk + 1 < rblocks).then(|| &firsts[(blk + 1) * nx..(blk + 2) * nx]);
+                    let g = &incoming[blk * nx..(blk + 1) * nx];
+                    ty.back_block(rows, blk * hr, g, above, &mut w[..nx]);
+                }
                 let (j0, h) = (blk * lx, rows.len() / nx);
                 let mut t = 1;
                 while t < h {
