@@ -346,3 +346,20 @@ fn imex_on_open_water_uses_the_transform_solver() {
     let worst = rows.iter().map(|r| r[col].abs()).fold(0.0, f64::max);
     assert!(worst < 1e-10, "budget residual {worst:e}");
 }
+
+/// `tinct bench --implicit --solvers` times only the solvers named, and an unknown one exits 2
+/// naming the option and the allowed values.
+#[test]
+fn implicit_bench_runs_the_solvers_named() {
+    let tmp = tempfile::tempdir().unwrap();
+    let args = ["bench", "--implicit", "--sizes", "16,32", "--steps", "2", "--solvers"];
+    let out = tinct(&[&args[..], &["transform"]].concat(), tmp.path());
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(text.contains("transform") && !text.contains("multigrid_cg"), "{text}");
+    assert!(text.contains("time ratio N = 32 / N = 16"), "{text}");
+    let out = tinct(&[&args[..], &["lu"]].concat(), tmp.path());
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("--solvers") && err.contains("multigrid_cg"), "{err}");
+}

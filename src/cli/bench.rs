@@ -32,6 +32,10 @@ pub struct BenchArgs {
     /// Steps per size for `--implicit`.
     #[arg(long, default_value_t = 7)]
     steps: usize,
+    /// Solvers for `--implicit`: `transform` (what `auto` picks on this problem) and
+    /// `multigrid_cg` (what runs with land or periodic sides use).
+    #[arg(long, value_delimiter = ',', default_value = "transform,multigrid_cg")]
+    solvers: Vec<String>,
 }
 
 /// Runs `tinct bench`.
@@ -45,6 +49,7 @@ pub fn main(a: BenchArgs) -> Result<(), Failure> {
         threads,
         implicit,
         steps,
+        solvers,
     } = a;
     let schemes = parse_schemes(&schemes)?;
     if let Some(t) = threads {
@@ -54,7 +59,7 @@ pub fn main(a: BenchArgs) -> Result<(), Failure> {
             .map_err(|e| bad_input(format!("--threads: {e}")))?;
     }
     if implicit {
-        return implicit_bench(&sizes, steps);
+        return implicit_bench(&sizes, steps, &solvers);
     }
     let refs = std::fs::read_to_string(&reference).ok();
     println!(
@@ -113,12 +118,22 @@ pub fn main(a: BenchArgs) -> Result<(), Failure> {
 /// (what runs with land or periodic sides use). The sizes' steps are interleaved, so the
 /// ratio is also given step by step (the median of the per-step ratios), which a drifting
 /// machine load affects least.
-fn implicit_bench(sizes: &[usize], steps: usize) -> Result<(), Failure> {
+fn implicit_bench(sizes: &[usize], steps: usize, solvers: &[String]) -> Result<(), Failure> {
     use tinct::solve::bench::{implicit_diffusion_sizes, median_step_ratio};
     use tinct::solve::{Method, SolverParams};
     if let Some(n) = sizes.iter().find(|&&n| n < 16) {
         return Err(bad_input(format!("--sizes: {n} is too small (at least 16)")));
     }
+    let methods = solvers
+        .iter()
+        .map(|s| match s.trim() {
+            "transform" => Ok(Method::Auto),
+            "multigrid_cg" => Ok(Method::Cg),
+            other => Err(bad_input(format!(
+                "--solvers: unknown solver `{other}` (allowed: transform, multigrid_cg)"
+            ))),
+        })
+        .collect::<Result<Vec<_>, _>>()?;
     println!(
         "implicit backward-Euler diffusion, diffusion number 10, zero-flux sides, rtol 1e-10; {} thread(s); sizes interleaved in rounds",
         rayon::current_num_threads()
@@ -127,7 +142,7 @@ fn implicit_bench(sizes: &[usize], steps: usize) -> Result<(), Failure> {
         "{:>14} {:>6} {:>12} {:>10} {:>10} {:>11} {:>14}",
         "solver", "N", "ms/step", "min", "max", "iterations", "setup ms"
     );
-    for method in [Method::Auto, Method::Cg] {
+    for method in methods {
         let params = SolverParams {
             method,
             ..SolverParams::default()
