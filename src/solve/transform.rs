@@ -14,9 +14,15 @@
 //! per x mode, `(m + cx lx_k) I + cy Ly`, solved by elimination with pivots factored once
 //! per operator; transforming back gives `A^-1 b` (the Fourier-analysis-and-tridiagonal fast
 //! Poisson solver of Hockney 1965, Methods in Computational Physics 9, 135-211; see also
-//! Buzbee, Golub & Nielson 1970, SIAM J. Numer. Anal. 7, 627-656). Cost `O(N log nx)`: FFTs
-//! of rows in parallel and elimination sweeps over contiguous rows in parallel over column
-//! ranges, with no transposes.
+//! Buzbee, Golub & Nielson 1970, SIAM J. Numer. Anal. 7, 627-656).
+//!
+//! One step of cyclic reduction in y comes first (FACR(1): Hockney 1970, Methods in
+//! Computational Physics 9, 135-211; Swarztrauber 1977, SIAM Review 19, 490-501): the even
+//! rows are eliminated, so only the odd rows are transformed, and the even rows are recovered
+//! afterwards by one tridiagonal solve along x each ([`XLines`]), which costs less than the
+//! two row transforms it replaces. The elimination along y runs block by block while the rows
+//! are in cache, the blocks linked by a short sweep (the partition method). Cost
+//! `O(N log nx)`: FFTs of half the rows in parallel, no transposes, two passes over the field.
 //!
 //! Which operators qualify is decided from the matrix-free form's per-cell flags, which
 //! reproduce the stored operator exactly, so the transform solves the same matrix.
