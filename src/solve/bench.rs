@@ -152,7 +152,7 @@ pub fn implicit_diffusion(n: usize, steps: usize, d: f64, params: SolverParams) 
 /// [`implicit_diffusion`] for several sizes at once, interleaved in rounds so that the sizes
 /// see the same machine (on a shared host the load drifts over seconds, and timing one size
 /// after the other would put that drift into their ratio): in each round every size runs one
-/// untimed step, which warms the caches the other sizes used, and then [`ROUND_STEPS`] timed
+/// untimed step, which warms the caches the other sizes used, and then two (`ROUND_STEPS`) timed
 /// steps. Returns one result per size, in order, with `steps` timed steps each.
 pub fn implicit_diffusion_sizes(
     sizes: &[usize],
