@@ -968,9 +968,9 @@ impl Transform {
         partial.par_iter_mut().enumerate().for_each(|(blk, part)| {
             let j0 = blk * lx;
             let j1 = (j0 + lx).min(ny) - 1;
-            // SAFETY: this task alone writes row j0; it reads rows j0 - 2 ..= j0 + 2 and j1 - 1,
-            // which no task writes in this pass (blocks are at least 4 rows, so the nearest
-            // rows other tasks write are j0 - 4 and j0 + 4).
+            // SAFETY: this task alone writes row j0; it reads rows j0 - 2 ..= j0 + 2 and
+            // j1 - 1 ..= j1 (inside the field), which no other task writes in this pass (blocks
+            // are at least 4 rows, so the nearest rows other tasks write are j0 - 4 and j0 + 4).
             let row = |j: usize| unsafe { std::slice::from_raw_parts(xp.ptr().add(j * nx), nx) };
             let out = unsafe { std::slice::from_raw_parts_mut(xp.ptr().add(j0 * nx), nx) };
             let zero = &xl.zero[..];
@@ -982,9 +982,12 @@ impl Transform {
                 _ => INTERIOR,
             };
             xl.solve_rows::<1>(kind, [out], [brow(j0)], [s], [n], cy);
+            // The field's end rows get zeros for their missing neighbour (their coefficient is
+            // zero), not the row across the field, which another task may be writing.
             let mut sum = |j: usize| {
-                let (js, jn) = a.nb_rows(j);
-                part[1] += res_row(j, row(js), row(j), row(jn));
+                let xs = if j > 0 { row(j - 1) } else { zero };
+                let xn = if j + 1 < ny { row(j + 1) } else { zero };
+                part[1] += res_row(j, xs, row(j), xn);
             };
             if j0 > 0 {
                 sum(j0 - 1);
@@ -1040,7 +1043,7 @@ fn solve_even<'b, const R: usize>(
 #[derive(Clone, Copy)]
 struct SyncPtr(*mut f64);
 // SAFETY: used only for accesses to disjoint entries from different tasks (see
-// `Tridiag::solve_columns`).
+// `Tridiag::link` and the first rows of `Transform::solve`).
 unsafe impl Send for SyncPtr {}
 // SAFETY: as above.
 unsafe impl Sync for SyncPtr {}
