@@ -261,6 +261,15 @@ const INTERIOR: usize = 0;
 const SOUTH_END: usize = 1;
 const NORTH_END: usize = 2;
 
+/// The kind of x operator of row `j` of a field `ny` rows high.
+fn row_kind(j: usize, ny: usize) -> usize {
+    match j {
+        0 => SOUTH_END,
+        j if j + 1 == ny => NORTH_END,
+        _ => INTERIOR,
+    }
+}
+
 /// Rows solved together by [`XLines::solve_rows`] (independent recurrences in flight).
 const GROUP: usize = 4;
 
@@ -954,8 +963,7 @@ impl Transform {
                         solve_even::<GROUP>(xl, rows, t, INTERIOR, nx, brow, j0, cy);
                         t += 2 * GROUP;
                     } else {
-                        let kind = if j0 + t == ny - 1 { NORTH_END } else { INTERIOR };
-                        solve_even::<1>(xl, rows, t, kind, nx, brow, j0, cy);
+                        solve_even::<1>(xl, rows, t, row_kind(j0 + t, ny), nx, brow, j0, cy);
                         t += 2;
                     }
                 }
@@ -976,12 +984,7 @@ impl Transform {
             let zero = &xl.zero[..];
             let s = if j0 > 0 { row(j0 - 1) } else { zero };
             let n = if j0 + 1 < ny { row(j0 + 1) } else { zero };
-            let kind = match j0 {
-                0 => SOUTH_END,
-                j if j == ny - 1 => NORTH_END,
-                _ => INTERIOR,
-            };
-            xl.solve_rows::<1>(kind, [out], [brow(j0)], [s], [n], cy);
+            xl.solve_rows::<1>(row_kind(j0, ny), [out], [brow(j0)], [s], [n], cy);
             // The field's end rows get zeros for their missing neighbour (their coefficient is
             // zero), not the row across the field, which another task may be writing.
             let mut sum = |j: usize| {
