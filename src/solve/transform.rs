@@ -270,6 +270,10 @@ fn row_kind(j: usize, ny: usize) -> usize {
     }
 }
 
+/// Columns per piece of the sweeps along y inside a block, so that the rows' pieces and the
+/// per-mode sums of a sweep stay in L1 whatever `nx` (4 KiB per row piece).
+const COLUMNS: usize = 512;
+
 /// Rows solved together by [`XLines::solve_rows`] (independent recurrences in flight).
 const GROUP: usize = 4;
 
@@ -428,6 +432,8 @@ struct Tridiag {
     last: Vec<f64>,
     /// Scratch of [`Self::factor`]: the pivots less `c` of the row being factored.
     r: Vec<f64>,
+    /// A row of zeros (the forward value before a block, as [`Self::eliminate_block`] takes it).
+    zero: Vec<f64>,
 }
 
 impl Tridiag {
@@ -442,6 +448,7 @@ impl Tridiag {
             rows: 1,
             last: vec![0.0; nx],
             r: vec![0.0; nx],
+            zero: vec![0.0; nx],
         }
     }
 
@@ -550,28 +557,17 @@ impl Tridiag {
         sh.fill(0.0);
         sk.fill(0.0);
         sp.fill(1.0);
-        let mut prev: Option<&[f64]> = None;
-        for (t, g) in rows.chunks_exact_mut(nx).enumerate().skip(1).step_by(2) {
-            let piv = self.pivots(i0 + t / 2);
-            match prev {
-                None => {
-                    for (v, &p) in g.iter_mut().zip(piv) {
-                        *v *= s * p;
-                    }
-                }
-                Some(q) => {
-                    for ((v, &q), &p) in g.iter_mut().zip(q).zip(piv) {
-                        *v = (s * *v + c * q) * p;
-                    }
-                }
+        for k0 in (0..nx).step_by(COLUMNS) {
+            let k = k0..(k0 + COLUMNS).min(nx);
+            let (sh, sk, sp) = (&mut sh[k.clone()], &mut sk[k.clone()], &mut sp[k.clone()]);
+            let mut prev: Option<&[f64]> = None;
+            for (t, row) in rows.chunks_exact_mut(nx).enumerate().skip(1).step_by(2) {
+                let (g, piv) = (&mut row[k.clone()], &self.pivots(i0 + t / 2)[k.clone()]);
+                // The row before the block counts as zero.
+                let q = prev.unwrap_or(&self.zero[..g.len()]);
+                eliminate_row(g, q, piv, [&mut *sh, &mut *sk, &mut *sp], s, c);
+                prev = Some(g);
             }
-            for ((((h, k), f), &v), &p) in sh.iter_mut().zip(sk.iter_mut()).zip(sp.iter_mut()).zip(&*g).zip(piv) {
-                let next = *f * (c * p);
-                *h += *f * v;
-                *k += *f * next;
-                *f = next;
-            }
-            prev = Some(g);
         }
     }
 
@@ -634,29 +630,49 @@ impl Tridiag {
     /// scratch.
     fn back_block(&self, rows: &mut [f64], i0: usize, incoming: &[f64], above: Option<&[f64]>, e: &mut [f64]) {
         let (nx, c) = (self.last.len(), self.c);
-        if i0 > 0 {
-            e.fill(1.0);
-            for (t, g) in rows.chunks_exact_mut(nx).enumerate().skip(1).step_by(2) {
-                for (((v, f), &p), &a) in g
-                    .iter_mut()
-                    .zip(e.iter_mut())
-                    .zip(self.pivots(i0 + t / 2))
-                    .zip(incoming)
-                {
-                    *f *= c * p;
-                    *v += *f * a;
+        for k0 in (0..nx).step_by(COLUMNS) {
+            let k = k0..(k0 + COLUMNS).min(nx);
+            if i0 > 0 {
+                let (e, incoming) = (&mut e[k.clone()], &incoming[k.clone()]);
+                e.fill(1.0);
+                for (t, row) in rows.chunks_exact_mut(nx).enumerate().skip(1).step_by(2) {
+                    let piv = &self.pivots(i0 + t / 2)[k.clone()];
+                    for (((v, f), &p), &a) in row[k.clone()].iter_mut().zip(e.iter_mut()).zip(piv).zip(incoming) {
+                        *f *= c * p;
+                        *v += *f * a;
+                    }
                 }
             }
-        }
-        let mut next: Option<&[f64]> = above;
-        for (t, u) in rows.chunks_exact_mut(nx).enumerate().skip(1).step_by(2).rev() {
-            if let Some(q) = next {
-                for ((v, &q), &p) in u.iter_mut().zip(q).zip(self.pivots(i0 + t / 2)) {
-                    *v += c * p * q;
+            let mut next: Option<&[f64]> = above.map(|a| &a[k.clone()]);
+            for (t, row) in rows.chunks_exact_mut(nx).enumerate().skip(1).step_by(2).rev() {
+                let u = &mut row[k.clone()];
+                if let Some(q) = next {
+                    for ((v, &q), &p) in u.iter_mut().zip(q).zip(&self.pivots(i0 + t / 2)[k.clone()]) {
+                        *v += c * p * q;
+                    }
                 }
+                next = Some(u);
             }
-            next = Some(u);
         }
+    }
+}
+
+/// One row of [`Tridiag::eliminate_block`]: `g = (s g + c q) piv` and the sums
+/// `H += P g`, `K += P P'`, `P = P'` with `P' = P c piv`. A function of its own, so the
+/// compiler knows the slices apart and vectorises the loop.
+#[inline]
+fn eliminate_row(g: &mut [f64], q: &[f64], piv: &[f64], sums: [&mut [f64]; 3], s: f64, c: f64) {
+    let w = g.len();
+    let [sh, sk, sp] = sums;
+    let (q, piv, sh, sk, sp) = (&q[..w], &piv[..w], &mut sh[..w], &mut sk[..w], &mut sp[..w]);
+    for j in 0..w {
+        let v = (s * g[j] + c * q[j]) * piv[j];
+        g[j] = v;
+        let f = sp[j];
+        let next = f * (c * piv[j]);
+        sh[j] += f * v;
+        sk[j] += f * next;
+        sp[j] = next;
     }
 }
 
