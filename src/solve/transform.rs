@@ -432,8 +432,6 @@ struct Tridiag {
     last: Vec<f64>,
     /// Scratch of [`Self::factor`]: the pivots less `c` of the row being factored.
     r: Vec<f64>,
-    /// A row of zeros (the forward value before a block, as [`Self::eliminate_block`] takes it).
-    zero: Vec<f64>,
 }
 
 impl Tridiag {
@@ -448,7 +446,6 @@ impl Tridiag {
             rows: 1,
             last: vec![0.0; nx],
             r: vec![0.0; nx],
-            zero: vec![0.0; nx],
         }
     }
 
@@ -550,8 +547,8 @@ impl Tridiag {
     /// by a short sweep, [`Self::link`]). For the back substitution `u_i = g_i + e_i u_{i+1}`
     /// it sums, for all modes, `H = sum_i P_i h_i`, `K = sum_i P_i P_{i+1}` and `P = P_{i1}`
     /// with `P_{i0} = 1`, `P_{i+1} = P_i e_i`, so that the block's first `u` is
-    /// `H + K G + P u_{i1}`.
-    fn eliminate_block(&self, rows: &mut [f64], i0: usize, s: f64, sums: [&mut [f64]; 3]) {
+    /// `H + K G + P u_{i1}`. `zero` is a row of zeros (the forward value before the block).
+    fn eliminate_block(&self, rows: &mut [f64], i0: usize, s: f64, sums: [&mut [f64]; 3], zero: &[f64]) {
         let (nx, c) = (self.last.len(), self.c);
         let [sh, sk, sp] = sums;
         sh.fill(0.0);
@@ -564,7 +561,7 @@ impl Tridiag {
             for (t, row) in rows.chunks_exact_mut(nx).enumerate().skip(1).step_by(2) {
                 let (g, piv) = (&mut row[k.clone()], &self.pivots(i0 + t / 2)[k.clone()]);
                 // The row before the block counts as zero.
-                let q = prev.unwrap_or(&self.zero[..g.len()]);
+                let q = prev.unwrap_or(&zero[..g.len()]);
                 eliminate_row(g, q, piv, [&mut *sh, &mut *sk, &mut *sp], s, c);
                 prev = Some(g);
             }
@@ -610,14 +607,22 @@ impl Tridiag {
             }
         }
         for blk in (0..blocks).rev() {
-            let (u, k, g) = (part(firsts, blk), &*part(cross, blk), &*part(incoming, blk));
-            for ((u, &k), &g) in u.iter_mut().zip(k).zip(g) {
-                *u += k * g;
-            }
+            let (u, k, g, p) = (
+                part(firsts, blk),
+                &*part(cross, blk),
+                &*part(incoming, blk),
+                &*part(prods, blk),
+            );
             if blk + 1 < blocks {
-                let (u, p, up) = (part(firsts, blk), &*part(prods, blk), &*part(firsts, blk + 1));
-                for ((u, &p), &a) in u.iter_mut().zip(p).zip(up) {
+                let up = &*part(firsts, blk + 1);
+                for ((((u, &k), &g), &p), &a) in u.iter_mut().zip(k).zip(g).zip(p).zip(up) {
+                    *u += k * g;
                     *u += p * a;
+                }
+            } else {
+                // Nothing above the top block.
+                for ((u, &k), &g) in u.iter_mut().zip(k).zip(g) {
+                    *u += k * g;
                 }
             }
         }
@@ -693,12 +698,13 @@ pub(crate) struct Transform {
     /// Rows per parallel block (even and at least 4, so blocks start on eliminated rows and
     /// only their first row needs the block below).
     lines: usize,
-    /// Column ranges of the y solves, one parallel task each.
+    /// Column ranges of [`Tridiag::link`], one parallel task each.
     columns: Vec<(usize, usize)>,
     /// Per block: the complex line and the FFT scratch.
     scratch: Vec<Complex<f64>>,
     scratch_len: usize,
-    /// Per block: four real lines (right-hand sides and end-row terms).
+    /// Per block: four real lines (right-hand sides and end-row terms; the back
+    /// substitution's running products).
     lines_scratch: Vec<f64>,
     /// Per row block: partial sums of `b . b` and of the squared residual.
     partial: Vec<[f64; 2]>,
@@ -922,21 +928,18 @@ impl Transform {
                     xl.kept_rhs(out, brow(j), hs, hn, cy);
                 };
                 // Odd rows in pairs: (1, 3), (5, 7), ...
-                let mut t = 1;
-                while t < h {
+                for t in (1..h).step_by(4) {
                     rhs(ra, j0 + t);
-                    let (lo, hi) = rows.split_at_mut((t + 1) * nx);
-                    let pa = &mut lo[t * nx..];
-                    if t + 2 < h {
-                        rhs(rb, j0 + t + 2);
-                        ax.forward_from(ra, Some(rb), pa, Some(&mut hi[nx..2 * nx]), z, fs);
-                    } else {
-                        ax.forward_from(ra, None, pa, None, z, fs);
+                    match odd_pair(rows, t, nx) {
+                        (pa, Some(pb)) => {
+                            rhs(rb, j0 + t + 2);
+                            ax.forward_from(ra, Some(rb), pa, Some(pb), z, fs);
+                        }
+                        (pa, None) => ax.forward_from(ra, None, pa, None, z, fs),
                     }
-                    t += 4;
                 }
                 // The block's elimination along y while its rows are in cache.
-                ty.eliminate_block(rows, blk * hr, scale, [sh, sk, sp]);
+                ty.eliminate_block(rows, blk * hr, scale, [sh, sk, sp], &xl.zero);
             });
         let xp = SyncPtr(x.as_mut_ptr());
         let rblocks = ty.n.div_ceil(hr);
@@ -964,12 +967,9 @@ impl Transform {
                     ty.back_block(rows, blk * hr, g, above, &mut w[..nx]);
                 }
                 let (j0, h) = (blk * lx, rows.len() / nx);
-                let mut t = 1;
-                while t < h {
-                    let (lo, hi) = rows.split_at_mut((t + 1) * nx);
-                    let pa = &mut lo[t * nx..];
-                    ax.inverse(pa, (t + 2 < h).then(|| &mut hi[nx..2 * nx]), z, fs);
-                    t += 4;
+                for t in (1..h).step_by(4) {
+                    let (pa, pb) = odd_pair(rows, t, nx);
+                    ax.inverse(pa, pb, z, fs);
                 }
                 // Even rows but the first: both neighbours are in the block (or beyond the
                 // north end).
@@ -1021,6 +1021,14 @@ impl Transform {
         });
         partial.iter().fold((0.0, 0.0), |(bb, rr), p| (bb + p[0], rr + p[1]))
     }
+}
+
+/// Rows `t` and `t + 2` of `rows` (rows of `nx`), the second `None` past the end: the pair
+/// of odd rows one complex FFT carries.
+fn odd_pair(rows: &mut [f64], t: usize, nx: usize) -> (&mut [f64], Option<&mut [f64]>) {
+    let h = rows.len() / nx;
+    let (lo, hi) = rows.split_at_mut((t + 1) * nx);
+    (&mut lo[t * nx..], (t + 2 < h).then(|| &mut hi[nx..2 * nx]))
 }
 
 /// Solves `R` even rows of a block, `t, t + 2, ...` (local row numbers, from 2 on), of kind
