@@ -185,9 +185,9 @@ impl Solver {
         };
         if self.params.method == Method::Transform && self.transform.is_none() {
             return Err(SolveError::InvalidOperator(
-                "the transform solver needs uniform coefficients on a rectangle of water whose west and \
-                 east sides are both closed or both fixed and whose south and north sides are closed or \
-                 fixed (not periodic); use Method::Auto"
+                "the transform solver needs uniform coefficients on a rectangle of water at least 3 cells \
+                 wide and 8 high whose west and east sides are both closed or both fixed and whose south \
+                 and north sides are closed or fixed (not periodic); use Method::Auto"
                     .into(),
             ));
         }

@@ -16,13 +16,17 @@
 //! Poisson solver of Hockney 1965, Methods in Computational Physics 9, 135-211; see also
 //! Buzbee, Golub & Nielson 1970, SIAM J. Numer. Anal. 7, 627-656).
 //!
-//! One step of cyclic reduction in y comes first (FACR(1): Hockney 1970, Methods in
-//! Computational Physics 9, 135-211; Swarztrauber 1977, SIAM Review 19, 490-501): the even
-//! rows are eliminated, so only the odd rows are transformed, and the even rows are recovered
-//! afterwards by one tridiagonal solve along x each ([`XLines`]), which costs less than the
-//! two row transforms it replaces. The elimination along y runs block by block while the rows
-//! are in cache, the blocks linked by a short sweep (the partition method). Cost
-//! `O(N log nx)`: FFTs of half the rows in parallel, no transposes, two passes over the field.
+//! One or two steps of cyclic reduction in y come first (FACR(l): Hockney 1970, Methods in
+//! Computational Physics 9, 135-211; Swarztrauber 1977, SIAM Review 19, 490-501): the first
+//! eliminates the even rows and the second every other odd row, so only a half or a quarter
+//! of the rows are transformed, and the eliminated rows are recovered afterwards by
+//! tridiagonal solves along x ([`XLines`]), which cost less than the row transforms they
+//! replace. The second step's round-off grows as the square of the spread of the x operator's
+//! eigenvalues, so it is taken only where that spread is small ([`MAX_SPREAD`]; always for
+//! square cells). The elimination along y runs block by block while the rows are in cache,
+//! the blocks linked by a short sweep (the partition method). Cost `O(N log nx)`: FFTs of a
+//! quarter (or half) of the rows in parallel, no transposes, two passes over the field. Fields
+//! under 8 rows high are left to the multigrid path.
 //!
 //! Which operators qualify is decided from the matrix-free form's per-cell flags, which
 //! reproduce the stored operator exactly, so the transform solves the same matrix.
@@ -152,7 +156,6 @@ impl Axis {
     }
 
     /// Forward transform of `a` and `b` (`b` absent: one line) in place.
-    #[cfg(test)]
     fn forward(&self, a: &mut [f64], b: Option<&mut [f64]>, z: &mut [Complex<f64>], s: &mut [Complex<f64>]) {
         self.load(a, b.as_deref(), z);
         self.transform_unpack(a, b, z, s);
@@ -255,11 +258,16 @@ impl Axis {
 /// Relative distance from the limit at which a pivot of the y recurrence counts as settled.
 const SETTLED: f64 = 4e-15;
 
-/// Which x operator a row uses ([`XLines`]): the interior rows', the south end row's, or the
-/// north end row's.
+/// Which x operator a row uses ([`XLines`]): the interior rows', the south end row's, the
+/// north end row's, and the two factors `T - sqrt2 cy` and `T + sqrt2 cy` of the operator
+/// `T^2 - 2 cy^2` of the rows the second reduction eliminates.
 const INTERIOR: usize = 0;
 const SOUTH_END: usize = 1;
 const NORTH_END: usize = 2;
+const LOWER: usize = 3;
+const UPPER: usize = 4;
+/// How many x operators [`XLines`] factors.
+const KINDS: usize = 5;
 
 /// The kind of x operator of row `j` of a field `ny` rows high.
 fn row_kind(j: usize, ny: usize) -> usize {
@@ -279,20 +287,21 @@ const GROUP: usize = 4;
 
 /// The x operators of single rows, `T_j = (m + y_j) I + cx Lx` with `y_j` the y part of row
 /// `j`'s diagonal (`2 cy` inside, `cy` plus `gy` at a fixed end row, `cy` at a closed one),
-/// factored for the Thomas algorithm (diagonally dominant, so no pivoting). The cyclic
-/// reduction multiplies the kept rows by the interior `T` and recovers the eliminated rows by
-/// solves with their own `T_j`.
+/// and the factors `T -+ sqrt2 cy I` of `T^2 - 2 cy^2 I` (`T` the interior one), factored for
+/// the Thomas algorithm (diagonally dominant, so no pivoting). The cyclic reduction multiplies
+/// the kept rows by the interior `T` (then by `T^2 - 2 cy^2`) and recovers the eliminated rows
+/// by solves with their own operators.
 #[derive(Debug, Clone)]
 struct XLines {
     cx: f64,
     /// `cx` times the extra end weight of `Lx` (`2 cx` at fixed ends, 0 at closed ones).
     ends: f64,
-    /// `m + y_j` of each kind.
-    b: [f64; 3],
+    /// The diagonal less that of `cx Lx` (`m + y_j`, or `m + (2 -+ sqrt2) cy`) of each kind.
+    b: [f64; KINDS],
     /// Reciprocal pivots of each kind.
-    q: [Vec<f64>; 3],
+    q: [Vec<f64>; KINDS],
     /// `cx` times the reciprocal pivots.
-    e: [Vec<f64>; 3],
+    e: [Vec<f64>; KINDS],
     /// A row of zeros (the missing neighbour of an end row).
     zero: Vec<f64>,
 }
@@ -303,9 +312,9 @@ impl XLines {
         Self {
             cx: 0.0,
             ends: 0.0,
-            b: [0.0; 3],
-            q: [v(), v(), v()],
-            e: [v(), v(), v()],
+            b: [0.0; KINDS],
+            q: std::array::from_fn(|_| v()),
+            e: std::array::from_fn(|_| v()),
             zero: v(),
         }
     }
@@ -319,9 +328,16 @@ impl XLines {
     fn factor(&mut self, m: f64, cx: f64, cy: f64, fixed: bool, gs: f64, gn: f64) {
         self.cx = cx;
         self.ends = if fixed { 2.0 * cx } else { 0.0 };
-        self.b = [m + 2.0 * cy, m + cy + gs, m + cy + gn];
+        let r2 = std::f64::consts::SQRT_2;
+        self.b = [
+            m + 2.0 * cy,
+            m + cy + gs,
+            m + cy + gn,
+            m + (2.0 - r2) * cy,
+            m + (2.0 + r2) * cy,
+        ];
         let n = self.zero.len();
-        for k in 0..3 {
+        for k in 0..KINDS {
             let (b, q, e) = (self.b[k], &mut self.q[k], &mut self.e[k]);
             let mut r = b + self.ends;
             q[0] = 1.0 / (cx + r);
@@ -349,6 +365,24 @@ impl XLines {
             out[i] = d * f[i] - cx * (f[i - 1] + f[i + 1]) + cy * (hs[i] + hn[i]);
         }
         out[n - 1] = dend * f[n - 1] - cx * f[n - 2] + cy * (hs[n - 1] + hn[n - 1]);
+    }
+
+    /// `out = D f + c (fs + fn) = T (T f) + c (fs + fn - 2 f)` with `D = T^2 - 2 c`, `c = cy^2`
+    /// and the interior `T`: the right-hand side of a row the second reduction keeps (`f` its
+    /// first-reduction right-hand side, `fs`, `fn` those of its eliminated neighbours). `t` is
+    /// scratch.
+    fn reduced_rhs(&self, out: &mut [f64], f: &[f64], fs: &[f64], fn_: &[f64], c: f64, t: &mut [f64]) {
+        let n = self.zero.len();
+        self.kept_rhs(t, f, &self.zero, &self.zero, 0.0);
+        let (out, t, f, fs, fn_) = (&mut out[..n], &t[..n], &f[..n], &fs[..n], &fn_[..n]);
+        let (cx, b) = (self.cx, self.b[INTERIOR]);
+        let (d, dend) = (b + 2.0 * cx, b + cx + self.ends);
+        let y = |i: usize| c * (fs[i] + fn_[i] - 2.0 * f[i]);
+        out[0] = dend * t[0] - cx * t[1] + y(0);
+        for i in 1..n - 1 {
+            out[i] = d * t[i] - cx * (t[i - 1] + t[i + 1]) + y(i);
+        }
+        out[n - 1] = dend * t[n - 1] - cx * t[n - 2] + y(n - 1);
     }
 
     /// Solves `T_kind out_r = f_r + cy (s_r + n_r)` for `R` rows at once (their recurrences
@@ -406,25 +440,38 @@ impl XLines {
     }
 }
 
-/// The y systems left after one step of cyclic reduction, one per x mode, factored.
+/// The y systems left after two steps of cyclic reduction, one per x mode, factored.
 ///
 /// Row `j` of the transformed operator reads `-cy u_{j-1} + tau_j u_j - cy u_{j+1} = f_j` with
-/// `tau_j = a + y_j` (`a = m + lx_k`, `y_j` as in [`XLines`]). Eliminating the even rows
-/// (`u_e = (f_e + cy u_{e-1} + cy u_{e+1}) / tau_e`) and multiplying by the interior `tau`
-/// leaves, on the odd rows `i = 0 .. n` (row `j = 2 i + 1`), the tridiagonal system
-/// `-c u_{i-1} + D_i u_i - c u_{i+1} = tau f_j + cy (tau / tau_{j-1}) f_{j-1} + ...` with
-/// `c = cy^2`, `D = tau^2 - 2 cy^2` inside, and end rows adjusted for the end `tau`s. It is
-/// solved by Gaussian elimination without pivoting (the Thomas algorithm; the Schur complement
-/// of a diagonally dominant matrix is one too) with pivots `p_0 = D_0`,
-/// `p_i = D_i - c^2 / p_{i-1}`, which converge geometrically to the larger root of
-/// `p^2 - D p + c^2 = 0` inside; the reciprocal pivots are stored only until every mode has
-/// settled to [`SETTLED`], so the table is a few dozen rows unless `cy / m` is very large.
+/// `tau_j = a + y_j` (`a = m + lx_k`, `y_j` as in [`XLines`]). The first step eliminates the
+/// even rows (`u_e = (f_e + cy u_{e-1} + cy u_{e+1}) / tau_e`) and multiplies by the interior
+/// `tau`, which leaves on the odd rows `i = 0 .. n1` (row `j = 2 i + 1`) the tridiagonal
+/// system `-c1 u_{i-1} + delta_i u_i - c1 u_{i+1} = F_i` with `c1 = cy^2`,
+/// `delta = D = tau^2 - 2 c1` inside, and end rows `delta_0`, `delta_{n1-1}` adjusted for the
+/// end `tau`s. The second step eliminates its even rows `i` again: the inside ones
+/// (`D u_i = F_i + c1 (u_{i-1} + u_{i+1})`, solved along x after the transform) and the end
+/// rows among them in the transformed space (`u_i = (F_i + c1 u_{i+-1}) / delta_i`). Multiplied
+/// by `D`, the odd rows `i = 2 k + 1` (field row `4 k + 3`) then read
+/// `-c u_{k-1} + (D^2 - 2 c) u_k - c u_{k+1} = D F_i + c1 (F_{i-1} + F_{i+1})` with `c = c1^2`,
+/// and their end rows absorb the end rows eliminated in the transformed space. This is solved
+/// by Gaussian elimination without pivoting (the Thomas algorithm; the Schur complement of a
+/// diagonally dominant matrix is one too) with pivots `p_0`, `p_k = d_k - c^2 / p_{k-1}`, which
+/// converge geometrically to the larger root of `p^2 - d p + c^2 = 0` inside; the reciprocal
+/// pivots are stored only until every mode has settled to [`SETTLED`], so the table is a few
+/// dozen rows unless `cy / m` is very large.
 #[derive(Debug, Clone)]
 struct Tridiag {
-    /// Rows of the reduced system (the odd rows of the field).
+    /// Cyclic reduction steps: 1, or 2 when the round-off allows (see [`Transform::refresh`]).
+    levels: usize,
+    /// Rows of the solved system: the once-reduced one (field rows `2 k + 1`) or the
+    /// twice-reduced one (field rows `4 k + 3`).
     n: usize,
-    /// The off-diagonal coupling `cy^2`.
+    /// Rows of the once-reduced system (the odd rows of the field).
+    n1: usize,
+    /// The solved system's off-diagonal coupling: `cy^2` once reduced, `cy^4` twice.
     c: f64,
+    /// The once-reduced system's coupling `cy^2`.
+    c1: f64,
     /// Reciprocal pivots of rows `0 .. rows` (then constant up to row `n - 2`), `nx` each.
     inv: Vec<f64>,
     rows: usize,
@@ -432,68 +479,130 @@ struct Tridiag {
     last: Vec<f64>,
     /// Scratch of [`Self::factor`]: the pivots less `c` of the row being factored.
     r: Vec<f64>,
+    /// Per mode, the once-reduced row 0 (field row 1), which the second step eliminates in
+    /// the transformed space: `c1 D / delta_0` (its weight in the first kept row's
+    /// right-hand side) and `1 / delta_0`.
+    south: [Vec<f64>; 2],
+    /// The same for the once-reduced last row when the second step eliminates it (`n1` odd).
+    north: [Vec<f64>; 2],
 }
 
 impl Tridiag {
-    /// The reduced systems of a field `ny` rows high.
+    /// The reduced systems of a field `ny >= 8` rows high.
     fn new(nx: usize, ny: usize) -> Self {
-        let n = ny / 2;
+        let n1 = ny / 2;
+        let v = || vec![0.0; nx];
         Self {
-            n,
+            levels: 1,
+            n: n1,
+            n1,
             c: 0.0,
+            c1: 0.0,
             // Zeroed memory is mapped lazily, so rows never reached cost nothing.
-            inv: vec![0.0; nx * (n - 1).max(1)],
+            inv: vec![0.0; nx * (n1 - 1)],
             rows: 1,
-            last: vec![0.0; nx],
-            r: vec![0.0; nx],
+            last: v(),
+            r: v(),
+            south: [v(), v()],
+            north: [v(), v()],
         }
     }
 
-    /// Factors for identity weight `m`, x eigenvalues `lam` (times `cx`), coupling `cy`, and
-    /// the extra weights `gs`, `gn` of the south and north end rows, on a field `ny` rows high.
+    /// Whether the second step eliminates the once-reduced last row in the transformed space
+    /// (else it is the last kept row).
+    fn north_spectral(&self) -> bool {
+        self.n1 % 2 == 1
+    }
+
+    /// Factors the once-reduced system (`levels = 1`) or the twice-reduced one (`levels = 2`)
+    /// for identity weight `m`, x eigenvalues `lam` (times `cx`), coupling `cy`, and the extra
+    /// weights `gs`, `gn` of the south and north end rows, on a field `ny` rows high.
     ///
-    /// The pivots are carried as `p_i = c + r_i` with `r_i = a (a + 4 cy) + c r_{i-1} / p_{i-1}`
-    /// inside, and the first and last rows' `D - c` written as sums of positive terms:
-    /// `r_0 = (a^3 + 5 a^2 cy + 5 a cy^2 + gs (a^2 + 4 a cy + 2 cy^2)) / tau_s`, the last row's
-    /// the same with `gn` when the north end row is eliminated (odd `ny`), and
-    /// `a^2 + 3 a cy + gn (a + 2 cy)` when it is kept (even `ny`). So nothing cancels even when
-    /// `cy / m` is huge and mode 0 between closed ends is nearly singular.
-    fn factor(&mut self, m: f64, lam: &[f64], cy: f64, gs: f64, gn: f64, ny: usize) {
-        let n = self.n;
-        let c = cy * cy;
-        self.c = c;
+    /// The pivots are carried as `p_k = c + r_k`, with `r_k = rho + c r_{k-1} / p_{k-1}` inside
+    /// and the end rows' `d - c` written as sums of positive terms. Once reduced: `c = c1`,
+    /// `rho = rho1 = D - 2 c1 = a (a + 4 cy)`, and the end rows have `delta - c1 = r1` with
+    /// `r1 = (a^3 + 5 a^2 cy + 5 a c1 + g (a^2 + 4 a cy + 2 c1)) / tau_end` beside an eliminated
+    /// end row and `a^2 + 3 a cy + g (a + 2 cy)` at a kept one (`g` the end's extra weight).
+    /// Twice reduced: `c = c1^2`, `rho = rho2 = D^2 - 4 c1^2 = rho1 (rho1 + 4 c1)`; an end row
+    /// that absorbs a once-reduced end row has `d - c = (c1 rho1 (D + c1) + r1 (rho2 + 2 c)) /
+    /// (c1 + r1)`, and the last kept row when it is the once-reduced last row, `c1 rho1 + D r1`.
+    /// So nothing cancels even when `cy / m` is huge and mode 0 between closed ends is nearly
+    /// singular.
+    #[allow(clippy::too_many_arguments)]
+    fn factor(&mut self, m: f64, lam: &[f64], cy: f64, gs: f64, gn: f64, ny: usize, levels: usize) {
+        let n1 = self.n1;
+        let c1 = cy * cy;
+        let twice = levels == 2;
+        let (n, c) = if twice { (n1 / 2, c1 * c1) } else { (n1, c1) };
+        (self.levels, self.n, self.c, self.c1) = (levels, n, c, c1);
         let nx = lam.len();
-        // D - c of a row next to an eliminated end row with extra weight g (over tau_end).
+        // delta - c1 of a once-reduced row next to an eliminated end row with extra weight g.
         let beside_end = |a: f64, g: f64| {
-            let poly = a * a * a + 5.0 * a * a * cy + 5.0 * a * c + g * (a * a + 4.0 * a * cy + 2.0 * c);
+            let poly = a * a * a + 5.0 * a * a * cy + 5.0 * a * c1 + g * (a * a + 4.0 * a * cy + 2.0 * c1);
             poly / (a + cy + g)
         };
-        if n == 1 {
-            // ny = 3: one kept row between two eliminated end rows.
-            for (p, &l) in self.last.iter_mut().zip(lam) {
-                let a = m + l;
-                let tau = a + 2.0 * cy;
-                *p = 1.0 / (tau * tau - c * tau / (a + cy + gs) - c * tau / (a + cy + gn));
+        let north_r1 = |a: f64| {
+            if ny.is_multiple_of(2) {
+                a * a + 3.0 * a * cy + gn * (a + 2.0 * cy)
+            } else {
+                beside_end(a, gn)
             }
-            self.inv[..nx].copy_from_slice(&self.last);
-            self.rows = 1;
-            return;
+        };
+        // (rho1, D, rho2) of a mode.
+        let parts = |a: f64| {
+            let rho1 = a * (a + 4.0 * cy);
+            (rho1, rho1 + 2.0 * c1, rho1 * (rho1 + 4.0 * c1))
+        };
+        // d - c of a twice-reduced end row that absorbs a once-reduced end row with r1.
+        let absorbs = |a: f64, r1: f64| {
+            let (rho1, d, rho2) = parts(a);
+            (c1 * rho1 * (d + c1) + r1 * (rho2 + 2.0 * c)) / (c1 + r1)
+        };
+        let north_spectral = twice && self.north_spectral();
+        // The solved system's first row's r, interior rho and last row's d - c of a mode.
+        let first = |a: f64| {
+            if twice {
+                absorbs(a, beside_end(a, gs))
+            } else {
+                beside_end(a, gs)
+            }
+        };
+        let rho = |a: f64| if twice { parts(a).2 } else { parts(a).0 };
+        let last = |a: f64| match (twice, north_spectral) {
+            (false, _) => north_r1(a),
+            (true, true) => absorbs(a, north_r1(a)),
+            (true, false) => {
+                let (rho1, d, _) = parts(a);
+                c1 * rho1 + d * north_r1(a)
+            }
+        };
+        if twice {
+            for (k, &l) in lam.iter().enumerate() {
+                let a = m + l;
+                let (_, d, _) = parts(a);
+                let (rs, rn) = (beside_end(a, gs), north_r1(a));
+                self.south[0][k] = c1 * d / (c1 + rs);
+                self.south[1][k] = 1.0 / (c1 + rs);
+                if north_spectral {
+                    self.north[0][k] = c1 * d / (c1 + rn);
+                    self.north[1][k] = 1.0 / (c1 + rn);
+                }
+            }
         }
         let r = &mut self.r;
-        let (first, rest) = self.inv.split_at_mut(nx);
-        for ((p, rk), &l) in first.iter_mut().zip(r.iter_mut()).zip(lam) {
-            *rk = beside_end(m + l, gs);
+        let (row0, rest) = self.inv.split_at_mut(nx);
+        for ((p, rk), &l) in row0.iter_mut().zip(r.iter_mut()).zip(lam) {
+            *rk = first(m + l);
             *p = 1.0 / (c + *rk);
         }
         self.rows = 1;
         // Rows 1 ..= n - 2 are interior; stop once every mode's pivot has settled at the
-        // larger root of p^2 - D p + c^2, that is p = c + (rho + sqrt(rho^2 + 4 rho c)) / 2.
-        let mut prev: &[f64] = first;
-        for (i, row) in rest.chunks_exact_mut(nx).enumerate().take(n - 2) {
+        // larger root of p^2 - d p + c^2, that is p = c + (rho + sqrt(rho^2 + 4 rho c)) / 2.
+        let mut prev: &[f64] = row0;
+        for (i, row) in rest.chunks_exact_mut(nx).enumerate().take(n.saturating_sub(2)) {
             let mut settled = true;
             for (((p, &q), rk), &l) in row.iter_mut().zip(prev).zip(r.iter_mut()).zip(lam) {
-                let a = m + l;
-                let rho = a * (a + 4.0 * cy);
+                let rho = rho(m + l);
                 *rk = rho + c * *rk * q;
                 let piv = c + *rk;
                 *p = 1.0 / piv;
@@ -510,14 +619,14 @@ impl Tridiag {
         let b0 = (n - 2).min(self.rows - 1) * nx;
         let before = &self.inv[b0..b0 + nx];
         for (((p, &q), &rk), &l) in self.last.iter_mut().zip(before).zip(self.r.iter()).zip(lam) {
-            let a = m + l;
-            let d = if ny.is_multiple_of(2) {
-                a * a + 3.0 * a * cy + gn * (a + 2.0 * cy)
-            } else {
-                beside_end(a, gn)
-            };
-            *p = 1.0 / (d + c * rk * q);
+            *p = 1.0 / (last(m + l) + c * rk * q);
         }
+    }
+
+    /// Field rows per solved row: 2 once reduced, 4 twice; solved row `k` is field row
+    /// `stride k + stride - 1`.
+    fn stride(&self) -> usize {
+        2 * self.levels
     }
 
     /// Reciprocal pivots of row `i < n - 1` (all `nx` modes).
@@ -538,9 +647,9 @@ impl Tridiag {
         }
     }
 
-    /// Forward elimination within one block of reduced rows, in place on `rows` (field rows
-    /// from an even row on, so the odd ones are reduced rows `i0 ..`), as if the row before
-    /// the block were zero, with the right-hand side scaled by `s`:
+    /// Forward elimination within one block of solved rows, in place on `rows` (field rows
+    /// from row `stride i0` on, so rows `stride - 1, 2 stride - 1, ...` of `rows` are solved
+    /// rows `i0 ..`; see [`Self::stride`]), as if the row before the block were zero, with the right-hand side scaled by `s`:
     /// `h_i = (s f_i + c h_{i-1}) / p_i`. The true forward values are
     /// `g_i = h_i + E_i G` with `G` the block below's last `g`, `E_i = e_{i0} ... e_i` and
     /// `e_i = c / p_i` (the partition method: blocks eliminate independently and are linked
@@ -549,7 +658,7 @@ impl Tridiag {
     /// with `P_{i0} = 1`, `P_{i+1} = P_i e_i`, so that the block's first `u` is
     /// `H + K G + P u_{i1}`. `zero` is a row of zeros (the forward value before the block).
     fn eliminate_block(&self, rows: &mut [f64], i0: usize, s: f64, sums: [&mut [f64]; 3], zero: &[f64]) {
-        let (nx, c) = (self.last.len(), self.c);
+        let (nx, c, st) = (self.last.len(), self.c, self.stride());
         let [sh, sk, sp] = sums;
         sh.fill(0.0);
         sk.fill(0.0);
@@ -558,8 +667,8 @@ impl Tridiag {
             let k = k0..(k0 + COLUMNS).min(nx);
             let (sh, sk, sp) = (&mut sh[k.clone()], &mut sk[k.clone()], &mut sp[k.clone()]);
             let mut prev: Option<&[f64]> = None;
-            for (t, row) in rows.chunks_exact_mut(nx).enumerate().skip(1).step_by(2) {
-                let (g, piv) = (&mut row[k.clone()], &self.pivots(i0 + t / 2)[k.clone()]);
+            for (t, row) in rows.chunks_exact_mut(nx).enumerate().skip(st - 1).step_by(st) {
+                let (g, piv) = (&mut row[k.clone()], &self.pivots(i0 + t / st)[k.clone()]);
                 // The row before the block counts as zero.
                 let q = prev.unwrap_or(&zero[..g.len()]);
                 eliminate_row(g, q, piv, [&mut *sh, &mut *sk, &mut *sp], s, c);
@@ -573,6 +682,8 @@ impl Tridiag {
     /// `G_{B+1} = h_last + P_B G_B`) into `incoming`; then down the blocks, each block's first
     /// `u` (`H + K G + P u` of the block above's first row) into `firsts`, which held `H`.
     ///
+    /// `ends[b]` is one past block `b`'s last reduced row.
+    ///
     /// # Safety
     /// `x` must point to `nx * ny` values and `firsts`, `cross`, `prods`, `incoming` to `nx`
     /// times the block count, `k0 + w <= nx`, and no other thread may access columns
@@ -582,22 +693,22 @@ impl Tridiag {
         &self,
         x: SyncPtr,
         (k0, w): (usize, usize),
-        lines: usize,
+        ends: &[usize],
         firsts: SyncPtr,
         cross: SyncPtr,
         prods: SyncPtr,
         incoming: SyncPtr,
     ) {
-        let (nx, n) = (self.last.len(), self.n);
+        let (nx, st) = (self.last.len(), self.stride());
         // SAFETY: row j's part lies inside its array and belongs to this caller alone; the
         // parts borrowed at once are different rows or different arrays.
         let part = |p: SyncPtr, j: usize| unsafe { std::slice::from_raw_parts_mut(p.ptr().add(j * nx + k0), w) };
-        let blocks = n.div_ceil(lines);
+        let blocks = ends.len();
         part(incoming, 0).fill(0.0);
-        for blk in 0..blocks.saturating_sub(1) {
-            let last = ((blk + 1) * lines).min(n) - 1;
+        for (blk, &end) in ends.iter().enumerate().take(blocks.saturating_sub(1)) {
+            let last = end - 1;
             let (h, p, g, next) = (
-                &*part(x, 2 * last + 1),
+                &*part(x, st * last + st - 1),
                 &*part(prods, blk),
                 &*part(incoming, blk),
                 part(incoming, blk + 1),
@@ -634,14 +745,14 @@ impl Tridiag {
     /// value `u` of the reduced row after them (`None` at the top of the field). `e` is
     /// scratch.
     fn back_block(&self, rows: &mut [f64], i0: usize, incoming: &[f64], above: Option<&[f64]>, e: &mut [f64]) {
-        let (nx, c) = (self.last.len(), self.c);
+        let (nx, c, st) = (self.last.len(), self.c, self.stride());
         for k0 in (0..nx).step_by(COLUMNS) {
             let k = k0..(k0 + COLUMNS).min(nx);
             if i0 > 0 {
                 let (e, incoming) = (&mut e[k.clone()], &incoming[k.clone()]);
                 e.fill(1.0);
-                for (t, row) in rows.chunks_exact_mut(nx).enumerate().skip(1).step_by(2) {
-                    let piv = &self.pivots(i0 + t / 2)[k.clone()];
+                for (t, row) in rows.chunks_exact_mut(nx).enumerate().skip(st - 1).step_by(st) {
+                    let piv = &self.pivots(i0 + t / st)[k.clone()];
                     for (((v, f), &p), &a) in row[k.clone()].iter_mut().zip(e.iter_mut()).zip(piv).zip(incoming) {
                         *f *= c * p;
                         *v += *f * a;
@@ -649,10 +760,10 @@ impl Tridiag {
                 }
             }
             let mut next: Option<&[f64]> = above.map(|a| &a[k.clone()]);
-            for (t, row) in rows.chunks_exact_mut(nx).enumerate().skip(1).step_by(2).rev() {
+            for (t, row) in rows.chunks_exact_mut(nx).enumerate().skip(st - 1).step_by(st).rev() {
                 let u = &mut row[k.clone()];
                 if let Some(q) = next {
-                    for ((v, &q), &p) in u.iter_mut().zip(q).zip(&self.pivots(i0 + t / 2)[k.clone()]) {
+                    for ((v, &q), &p) in u.iter_mut().zip(q).zip(&self.pivots(i0 + t / st)[k.clone()]) {
                         *v += c * p * q;
                     }
                 }
@@ -695,16 +806,21 @@ pub(crate) struct Transform {
     /// Fixed values at the south and north ends.
     south: bool,
     north: bool,
-    /// Rows per parallel block (even and at least 4, so blocks start on eliminated rows and
-    /// only their first row needs the block below).
+    /// Rows per parallel block: a multiple of 4 and at least 8, so blocks start on a row
+    /// `4 k` and only their first three rows need the block below (the last block takes up to
+    /// 7 rows more rather than leave a shorter one).
     lines: usize,
+    /// Per block: its field rows `j0 .. j1`.
+    blocks: Vec<(usize, usize)>,
+    /// Per block: one past its last twice-reduced row.
+    ends: Vec<usize>,
     /// Column ranges of [`Tridiag::link`], one parallel task each.
     columns: Vec<(usize, usize)>,
     /// Per block: the complex line and the FFT scratch.
     scratch: Vec<Complex<f64>>,
     scratch_len: usize,
-    /// Per block: four real lines (right-hand sides and end-row terms; the back
-    /// substitution's running products).
+    /// Per block: [`SCRATCH_LINES`] real lines (right-hand sides, end-row terms and the
+    /// back substitution's running products).
     lines_scratch: Vec<f64>,
     /// Per row block: partial sums of `b . b` and of the squared residual.
     partial: Vec<[f64; 2]>,
@@ -716,6 +832,18 @@ pub(crate) struct Transform {
     prods: Vec<f64>,
     incoming: Vec<f64>,
 }
+
+/// The largest spread `T_max / T_min` of the interior x operator `T = (m + 2 cy) I + cx Lx`
+/// for which the solver takes the second cyclic reduction step. Its round-off grows as the
+/// spread squared (the twice-reduced right-hand sides `(T^2 - 2 cy^2) F` are formed before
+/// the transform, so rounding relative to the largest modes lands on the smallest), the first
+/// step's as the spread: at spread 11 the relative residual measured 4e-14 twice reduced and
+/// 2e-15 once (`solves_closed_and_fixed_rectangles`), so at 16 it stays near 1e-13. Isotropic
+/// cells never exceed 3; only cells much wider than tall with large time steps do.
+const MAX_SPREAD: f64 = 16.0;
+
+/// Real scratch lines per block of [`Transform::solve`].
+const SCRATCH_LINES: usize = 8;
 
 /// How `c` (on `nx` by `ny` cells, not periodic) ends: the x ends as a pair and whether the
 /// south and the north ends are fixed, if it is a rectangle of water with closed or fixed x
@@ -779,6 +907,10 @@ impl Transform {
         }
         let c = a.compact.as_ref()?;
         let (ex, south, north) = qualifying_ends(c, nx, ny)?;
+        // Two steps of cyclic reduction need at least two rows kept by both.
+        if ny < 8 {
+            return None;
+        }
         if !(c.k.m > 0.0 && c.k.cx >= 0.0 && c.k.cy >= 0.0 && c.k.gy >= 0.0) {
             return None;
         }
@@ -786,7 +918,7 @@ impl Transform {
         let x = Axis::new(&mut planner, ex, nx, c.k.cx);
         let threads = rayon::current_num_threads().max(1);
         // Rows per block: a few blocks per thread, at most BLOCK_LINES.
-        let lines = ny.div_ceil(4 * threads).clamp(4, BLOCK_LINES).next_multiple_of(2);
+        let lines = ny.div_ceil(4 * threads).clamp(8, BLOCK_LINES).next_multiple_of(4);
         // Column ranges: one per thread, widths a multiple of 8 values (whole cache lines).
         let width = nx.div_ceil(threads).next_multiple_of(8);
         let columns = (0..nx).step_by(width).map(|k0| (k0, width.min(nx - k0))).collect();
@@ -800,6 +932,8 @@ impl Transform {
             south,
             north,
             lines,
+            blocks: Vec::new(),
+            ends: Vec::new(),
             columns,
             scratch: Vec::new(),
             scratch_len: 0,
@@ -814,14 +948,24 @@ impl Transform {
         t.refresh(a).then_some(t)
     }
 
-    /// Blocks of `lines` rows (even, at least 4) from now on.
+    /// Blocks of `lines` rows (rounded up to a multiple of 4, at least 8) from now on.
     fn set_lines(&mut self, lines: usize) {
-        let lines = lines.max(4).next_multiple_of(2);
-        let blocks = self.ny.div_ceil(lines);
+        let (nx, ny) = (self.nx, self.ny);
+        let lines = lines.max(8).next_multiple_of(4);
         self.lines = lines;
-        self.scratch_len = self.nx + self.x.scratch_len;
+        self.blocks.clear();
+        let mut j0 = 0;
+        while j0 < ny {
+            // A remainder shorter than 8 rows joins the block before it.
+            let j1 = if ny - j0 < lines + 8 { ny } else { j0 + lines };
+            self.blocks.push((j0, j1));
+            j0 = j1;
+        }
+        self.set_ends();
+        let blocks = self.blocks.len();
+        self.scratch_len = nx + self.x.scratch_len;
         self.scratch.resize(blocks * self.scratch_len, Complex::new(0.0, 0.0));
-        self.lines_scratch.resize(blocks * 4 * self.nx, 0.0);
+        self.lines_scratch.resize(blocks * SCRATCH_LINES * nx, 0.0);
         self.partial.resize(blocks, [0.0; 2]);
         for v in [&mut self.firsts, &mut self.cross, &mut self.prods, &mut self.incoming] {
             v.resize(blocks * self.nx, 0.0);
@@ -831,6 +975,12 @@ impl Transform {
     /// Takes the coefficients of `a` if it qualifies with the same shape and sides (no
     /// allocation); `false` (and `self` unchanged) otherwise.
     pub fn refresh(&mut self, a: &Stencil5) -> bool {
+        self.refresh_levels(a, None)
+    }
+
+    /// [`Self::refresh`] with the number of cyclic reduction steps given (1 or 2) or chosen
+    /// from the spread of the x operator's eigenvalues (see [`MAX_SPREAD`]).
+    fn refresh_levels(&mut self, a: &Stencil5, levels: Option<usize>) -> bool {
         if a.periodic_x || a.periodic_y || (a.nx, a.ny) != (self.nx, self.ny) {
             return false;
         }
@@ -843,25 +993,42 @@ impl Transform {
         let (gs, gn) = (if self.south { k.gy } else { 0.0 }, if self.north { k.gy } else { 0.0 });
         self.cy = k.cy;
         self.x.set_coupling(k.cx);
-        self.y.factor(k.m, &self.x.lam, k.cy, gs, gn, self.ny);
+        // The spread of the interior x operator's eigenvalues decides the reduction steps.
+        let (lo, hi) = self
+            .x
+            .lam
+            .iter()
+            .fold((f64::MAX, 0.0f64), |(lo, hi), &l| (lo.min(l), hi.max(l)));
+        let t0 = k.m + 2.0 * k.cy;
+        let levels = levels.unwrap_or(if (t0 + hi) / (t0 + lo) <= MAX_SPREAD { 2 } else { 1 });
+        self.y.factor(k.m, &self.x.lam, k.cy, gs, gn, self.ny, levels);
         self.xl.factor(k.m, k.cx, k.cy, self.x.ends() == Ends::Fixed, gs, gn);
+        self.set_ends();
         true
+    }
+
+    /// One past each block's last solved row.
+    fn set_ends(&mut self) {
+        let (st, n) = (self.y.stride(), self.y.n);
+        self.ends.clear();
+        self.ends.extend(self.blocks.iter().map(|&(_, j1)| (j1 / st).min(n)));
     }
 
     /// `x = A^-1 b` for the operator `a` the solver was built or refreshed for (no
     /// allocation); returns `(b . b, ||b - A x||^2)`, both summed per row block in block order.
     ///
-    /// One step of cyclic reduction in y first (FACR(1): Hockney 1970, Methods in
+    /// Two steps of cyclic reduction in y first (FACR(2): Hockney 1970, Methods in
     /// Computational Physics 9, 135-211; Swarztrauber 1977, SIAM Review 19, 490-501): only the
-    /// odd rows are transformed, and the even ones are recovered by tridiagonal solves along x.
-    /// Two passes over the field, with short ones between and after: blocks of rows form the
-    /// odd rows' reduced right-hand sides, transform them along x (and sum `b . b`) and
+    /// rows `4 k + 3` (and field row 1, and the last odd row when the odd rows are an odd
+    /// count) are transformed, and the others are recovered by tridiagonal solves along x (see
+    /// [`Tridiag`]). Two passes over the field, with short ones between and after: blocks of
+    /// rows form the reduced right-hand sides, transform them along x (and sum `b . b`) and
     /// eliminate them along y while in cache, as if the block below were zero (every mode at
     /// once, so the loops vectorise); column ranges link the blocks (one row per block, see
     /// [`Tridiag::link`]); blocks of rows finish the elimination and back-substitute,
-    /// transform back, solve their even rows but the first along x and sum their residual
-    /// rows while in cache; and each block's first row is solved and the rows around it
-    /// summed last.
+    /// transform back, recover their rows but the first three along x and sum their residual
+    /// rows while in cache; and each block's first three rows are recovered and the rows
+    /// around them summed last.
     pub fn solve(&mut self, a: &Stencil5, b: &[f64], x: &mut [f64]) -> (f64, f64) {
         let Self {
             nx,
@@ -870,7 +1037,8 @@ impl Transform {
             y: ty,
             xl,
             cy,
-            lines,
+            blocks,
+            ends,
             columns,
             scratch,
             scratch_len,
@@ -882,18 +1050,36 @@ impl Transform {
             incoming,
             ..
         } = self;
-        let (nx, ny, sl, lx, cy) = (*nx, *ny, *scratch_len, *lines, *cy);
+        let (nx, ny, sl, cy) = (*nx, *ny, *scratch_len, *cy);
         let Some(comp) = a.compact.as_ref() else {
             return (f64::NAN, f64::NAN);
         };
-        let (ax, xl, ty) = (&*ax, &*xl, &*ty);
+        let (ax, xl, ty, blocks, ends) = (&*ax, &*xl, &*ty, &blocks[..], &ends[..]);
         let brow = |j: usize| &b[j * nx..(j + 1) * nx];
         // The inverse transform returns nx times the line, hence the scale.
         let scale = 1.0 / nx as f64;
-        let hr = lx / 2;
-        x.par_chunks_mut(lx * nx)
+        let (c1, nb, zero) = (ty.c1, blocks.len(), &xl.zero[..]);
+        // The odd rows the second step eliminates in the transformed space: field row 1, and
+        // the last odd row when the odd rows are an odd count.
+        let (st, twice) = (ty.stride(), ty.levels == 2);
+        let top = (twice && ty.north_spectral()).then(|| 2 * ty.n1 - 1);
+        let spectral = |j: usize| twice && (j == 1 || Some(j) == top);
+        // Each such row with the kept row beside it and its weights (see `Tridiag::south`).
+        let spectral_rows = [(1, 3, &ty.south)]
+            .into_iter()
+            .filter(|_| twice)
+            .chain(top.map(|j| (j, j - 2, &ty.north)));
+        let xp = SyncPtr(x.as_mut_ptr());
+        // SAFETY: the blocks are disjoint row ranges of the nx * ny field at `xp`, and each
+        // parallel task below takes its own block's only.
+        let block_rows = |blk: usize| {
+            let (j0, j1) = blocks[blk];
+            unsafe { std::slice::from_raw_parts_mut(xp.ptr().add(j0 * nx), (j1 - j0) * nx) }
+        };
+        (0..nb)
+            .into_par_iter()
             .zip(scratch.par_chunks_mut(sl))
-            .zip(lines_scratch.par_chunks_mut(4 * nx))
+            .zip(lines_scratch.par_chunks_mut(SCRATCH_LINES * nx))
             .zip(partial.par_iter_mut())
             .zip(
                 firsts
@@ -901,79 +1087,149 @@ impl Transform {
                     .zip(cross.par_chunks_mut(nx))
                     .zip(prods.par_chunks_mut(nx)),
             )
-            .enumerate()
-            .for_each(|(blk, ((((rows, s), w), part), ((sh, sk), sp)))| {
+            .for_each(|((((blk, s), w), part), ((sh, sk), sp))| {
+                let rows = block_rows(blk);
+                let (j0, j1) = blocks[blk];
+                let h = j1 - j0;
                 let (z, fs) = s.split_at_mut(nx);
-                let (ra, w) = w.split_at_mut(nx);
-                let (rb, w) = w.split_at_mut(nx);
-                let (ws, wn) = w.split_at_mut(nx);
-                let (j0, h) = (blk * lx, rows.len() / nx);
-                let src = &b[j0 * nx..(j0 + h) * nx];
+                let [ws, wn, fj, tl, up, ra, rb, _] = lines_of::<SCRATCH_LINES>(w, nx);
+                let src = &b[j0 * nx..j1 * nx];
                 part[0] = dot_lanes(src, src);
-                // The eliminated end rows' right-hand sides, for the kept rows beside them.
+                // The eliminated end rows' right-hand sides, for the odd rows beside them.
                 if j0 == 0 {
-                    xl.end_rhs(SOUTH_END, ws, brow(0), ra);
+                    xl.end_rhs(SOUTH_END, ws, brow(0), tl);
                 }
-                if ny % 2 == 1 && (j0..j0 + h).contains(&(ny - 2)) {
-                    xl.end_rhs(NORTH_END, wn, brow(ny - 1), ra);
+                if ny % 2 == 1 && (j0..=j1 + 1).contains(&(ny - 2)) {
+                    xl.end_rhs(NORTH_END, wn, brow(ny - 1), tl);
                 }
                 let (ws, wn) = (&*ws, &*wn);
-                let rhs = |out: &mut [f64], j: usize| {
+                // The first step's right-hand side of odd row j.
+                let once = |out: &mut [f64], j: usize| {
                     let hs = if j == 1 { ws } else { brow(j - 1) };
                     let hn = match j + 1 {
-                        n if n == ny => &xl.zero[..],
+                        n if n == ny => zero,
                         n if n == ny - 1 => wn,
                         n => brow(n),
                     };
                     xl.kept_rhs(out, brow(j), hs, hn, cy);
                 };
-                // Odd rows in pairs: (1, 3), (5, 7), ...
-                for t in (1..h).step_by(4) {
-                    rhs(ra, j0 + t);
-                    match odd_pair(rows, t, nx) {
-                        (pa, Some(pb)) => {
-                            rhs(rb, j0 + t + 2);
-                            ax.forward_from(ra, Some(rb), pa, Some(pb), z, fs);
+                // Rows 4 k + 1 (twice reduced): the first step's right-hand sides, in place.
+                if twice {
+                    for t in (1..h).step_by(4) {
+                        once(row_mut(rows, t, nx), j0 + t);
+                    }
+                }
+                // The solved rows' right-hand sides, transformed in pairs: the first step's (odd
+                // rows, once reduced) or the second step's (rows 4 k + 3, twice reduced; the
+                // first step's one above the block's last row formed again here).
+                let reduced =
+                    |out: &mut [f64], rows: &[f64], t: usize, fj: &mut [f64], tl: &mut [f64], up: &mut [f64]| {
+                        let j = j0 + t;
+                        once(fj, j);
+                        let line = |r: usize| &rows[r * nx..(r + 1) * nx];
+                        let lower = if spectral(j - 2) { zero } else { line(t - 2) };
+                        let upper = if j + 2 >= ny || spectral(j + 2) {
+                            zero
+                        } else if t + 2 < h {
+                            line(t + 2)
+                        } else {
+                            once(up, j + 2);
+                            &*up
+                        };
+                        xl.reduced_rhs(out, fj, lower, upper, c1, tl);
+                    };
+                let mut rhs = |out: &mut [f64], rows: &[f64], t: usize| {
+                    if twice {
+                        reduced(out, rows, t, &mut *fj, &mut *tl, &mut *up);
+                    } else {
+                        once(out, j0 + t);
+                    }
+                };
+                for t in (st - 1..h).step_by(2 * st) {
+                    rhs(ra, rows, t);
+                    if t + st < h {
+                        rhs(rb, rows, t + st);
+                        let (pa, pb) = two_rows(rows, t, t + st, nx);
+                        ax.forward_from(ra, Some(rb), pa, Some(pb), z, fs);
+                    } else {
+                        ax.forward_from(ra, None, row_mut(rows, t, nx), None, z, fs);
+                    }
+                }
+                // The odd rows eliminated in the transformed space: transformed in place, and
+                // added to the kept row beside them.
+                for (j, kept, weights) in spectral_rows.clone() {
+                    if (j0..j1).contains(&j) {
+                        ax.forward(row_mut(rows, j - j0, nx), None, z, fs);
+                        let (f, v) = two_rows(rows, j - j0, kept - j0, nx);
+                        for ((v, &f), &w) in v.iter_mut().zip(f.iter()).zip(&weights[0]) {
+                            *v += w * f;
                         }
-                        (pa, None) => ax.forward_from(ra, None, pa, None, z, fs),
                     }
                 }
                 // The block's elimination along y while its rows are in cache.
-                ty.eliminate_block(rows, blk * hr, scale, [sh, sk, sp], &xl.zero);
+                ty.eliminate_block(rows, j0 / st, scale, [sh, sk, sp], zero);
             });
-        let xp = SyncPtr(x.as_mut_ptr());
-        let rblocks = ty.n.div_ceil(hr);
         let ptrs = [&mut *firsts, &mut *cross, &mut *prods, &mut *incoming].map(|v| SyncPtr(v.as_mut_ptr()));
         columns.par_iter().for_each(|&(k0, w)| {
             // SAFETY: the column ranges are disjoint and inside the nx * ny field at `xp` and
             // the nx-wide per-block rows of the four sums.
-            unsafe { ty.link(xp, (k0, w), hr, ptrs[0], ptrs[1], ptrs[2], ptrs[3]) }
+            unsafe { ty.link(xp, (k0, w), ends, ptrs[0], ptrs[1], ptrs[2], ptrs[3]) }
         });
         let (firsts, incoming): (&[f64], &[f64]) = (firsts, incoming);
         let res_row = |j: usize, xs: &[f64], xm: &[f64], xn: &[f64]| {
             let c = j * nx..(j + 1) * nx;
             compact::residual_row_sq(&comp.k, comp.rows[j], &comp.flags[c.clone()], xs, xm, xn, &b[c])
         };
-        x.par_chunks_mut(lx * nx)
+        (0..nb)
+            .into_par_iter()
             .zip(scratch.par_chunks_mut(sl))
-            .zip(lines_scratch.par_chunks_mut(4 * nx))
+            .zip(lines_scratch.par_chunks_mut(SCRATCH_LINES * nx))
             .zip(partial.par_iter_mut())
-            .enumerate()
-            .for_each(|(blk, (((rows, s), w), part))| {
+            .for_each(|(((blk, s), w), part)| {
+                let rows = block_rows(blk);
+                let (j0, j1) = blocks[blk];
+                let h = j1 - j0;
                 let (z, fs) = s.split_at_mut(nx);
-                if blk < rblocks {
-                    let above = (blk + 1 < rblocks).then(|| &firsts[(blk + 1) * nx..(blk + 2) * nx]);
-                    let g = &incoming[blk * nx..(blk + 1) * nx];
-                    ty.back_block(rows, blk * hr, g, above, &mut w[..nx]);
+                let above = (blk + 1 < nb).then(|| &firsts[(blk + 1) * nx..(blk + 2) * nx]);
+                let g = &incoming[blk * nx..(blk + 1) * nx];
+                ty.back_block(rows, j0 / st, g, above, &mut w[..nx]);
+                // The odd rows eliminated in the transformed space, from the kept row beside
+                // them, and back along x.
+                for (j, kept, weights) in spectral_rows.clone() {
+                    if (j0..j1).contains(&j) {
+                        let (v, u) = two_rows(rows, j - j0, kept - j0, nx);
+                        for ((v, &u), &d) in v.iter_mut().zip(u.iter()).zip(&weights[1]) {
+                            *v = (scale * *v + c1 * u) * d;
+                        }
+                        ax.inverse(v, None, z, fs);
+                    }
                 }
-                let (j0, h) = (blk * lx, rows.len() / nx);
-                for t in (1..h).step_by(4) {
-                    let (pa, pb) = odd_pair(rows, t, nx);
-                    ax.inverse(pa, pb, z, fs);
+                // The solved rows back along x, in pairs.
+                for t in (st - 1..h).step_by(2 * st) {
+                    if t + st < h {
+                        let (pa, pb) = two_rows(rows, t, t + st, nx);
+                        ax.inverse(pa, Some(pb), z, fs);
+                    } else {
+                        ax.inverse(row_mut(rows, t, nx), None, z, fs);
+                    }
                 }
-                // Even rows but the first: both neighbours are in the block (or beyond the
-                // north end).
-                let mut t = 2;
+                // Rows 4 k + 1 but the first (twice reduced) from the kept rows beside them.
+                let inside = |t: usize| twice && t < h && !spectral(j0 + t);
+                let mut t = 5;
+                while t < h {
+                    if (0..GROUP).all(|r| inside(t + 4 * r)) {
+                        solve_twice::<GROUP>(xl, rows, t, nx, c1, w);
+                        t += 4 * GROUP;
+                    } else {
+                        if inside(t) {
+                            solve_twice::<1>(xl, rows, t, nx, c1, w);
+                        }
+                        t += 4;
+                    }
+                }
+                // Even rows but the first two: both neighbours are in the block (or beyond
+                // the north end).
+                let mut t = 4;
                 while t < h {
                     if t + 2 * GROUP <= h {
                         solve_even::<GROUP>(xl, rows, t, INTERIOR, nx, brow, j0, cy);
@@ -983,52 +1239,69 @@ impl Transform {
                         t += 2;
                     }
                 }
-                let line = |r: usize| &rows[r * nx..(r + 1) * nx];
-                part[1] = (2..h.saturating_sub(1))
+                // The residual of the rows whose neighbours are final (the block's last row's
+                // upper one is not, unless it lies beyond the north end).
+                let line = |r: usize| if r < h { &rows[r * nx..(r + 1) * nx] } else { zero };
+                let stop = if blk + 1 == nb { h } else { h - 1 };
+                part[1] = (4..stop)
                     .map(|r| res_row(j0 + r, line(r - 1), line(r), line(r + 1)))
                     .sum();
             });
-        // Each block's first row, then the residual rows around it (and the field's last).
-        partial.par_iter_mut().enumerate().for_each(|(blk, part)| {
-            let j0 = blk * lx;
-            let j1 = (j0 + lx).min(ny) - 1;
-            // SAFETY: this task alone writes row j0; it reads rows j0 - 2 ..= j0 + 2 and
-            // j1 - 1 ..= j1 (inside the field), which no other task writes in this pass (blocks
-            // are at least 4 rows, so the nearest rows other tasks write are j0 - 4 and j0 + 4).
-            let row = |j: usize| unsafe { std::slice::from_raw_parts(xp.ptr().add(j * nx), nx) };
-            let out = unsafe { std::slice::from_raw_parts_mut(xp.ptr().add(j0 * nx), nx) };
-            let zero = &xl.zero[..];
-            let s = if j0 > 0 { row(j0 - 1) } else { zero };
-            let n = if j0 + 1 < ny { row(j0 + 1) } else { zero };
-            xl.solve_rows::<1>(row_kind(j0, ny), [out], [brow(j0)], [s], [n], cy);
-            // The field's end rows get zeros for their missing neighbour (their coefficient is
-            // zero), not the row across the field, which another task may be writing.
-            let mut sum = |j: usize| {
-                let xs = if j > 0 { row(j - 1) } else { zero };
-                let xn = if j + 1 < ny { row(j + 1) } else { zero };
-                part[1] += res_row(j, xs, row(j), xn);
-            };
-            if j0 > 0 {
-                sum(j0 - 1);
-            }
-            sum(j0);
-            if j0 < j1 {
-                sum(j0 + 1);
-            }
-            if j1 == ny - 1 && j1 > j0 + 1 {
-                sum(j1);
-            }
-        });
+        // Each block's first three rows, then the residual rows around them.
+        partial
+            .par_iter_mut()
+            .zip(lines_scratch.par_chunks_mut(SCRATCH_LINES * nx))
+            .enumerate()
+            .for_each(|(blk, (part, w))| {
+                let j0 = blocks[blk].0;
+                // SAFETY: this task alone writes rows j0 ..= j0 + 2 in this pass; it reads rows
+                // j0 - 2 ..= j0 + 4 (inside the field), which no other task writes in this pass
+                // (blocks are at least 8 rows, so the nearest rows other tasks write are j0 - 6
+                // and j0 + 8).
+                let row = |j: usize| unsafe { std::slice::from_raw_parts(xp.ptr().add(j * nx), nx) };
+                let out = |j: usize| unsafe { std::slice::from_raw_parts_mut(xp.ptr().add(j * nx), nx) };
+                if twice && j0 > 0 {
+                    let (mid, _) = w.split_at_mut(nx);
+                    xl.solve_rows::<1>(LOWER, [&mut *mid], [row(j0 + 1)], [row(j0 - 1)], [row(j0 + 3)], c1);
+                    xl.solve_rows::<1>(UPPER, [out(j0 + 1)], [&*mid], [zero], [zero], 0.0);
+                }
+                for j in [j0, j0 + 2] {
+                    let s = if j > 0 { row(j - 1) } else { zero };
+                    xl.solve_rows::<1>(row_kind(j, ny), [out(j)], [brow(j)], [s], [row(j + 1)], cy);
+                }
+                // The field's end rows get zeros for their missing neighbour (their coefficient
+                // is zero), not the row across the field, which another task may be writing.
+                for j in j0.saturating_sub(1)..=j0 + 3 {
+                    let xs = if j > 0 { row(j - 1) } else { zero };
+                    let xn = if j + 1 < ny { row(j + 1) } else { zero };
+                    part[1] += res_row(j, xs, row(j), xn);
+                }
+            });
         partial.iter().fold((0.0, 0.0), |(bb, rr), p| (bb + p[0], rr + p[1]))
     }
 }
 
-/// Rows `t` and `t + 2` of `rows` (rows of `nx`), the second `None` past the end: the pair
-/// of odd rows one complex FFT carries.
-fn odd_pair(rows: &mut [f64], t: usize, nx: usize) -> (&mut [f64], Option<&mut [f64]>) {
-    let h = rows.len() / nx;
-    let (lo, hi) = rows.split_at_mut((t + 1) * nx);
-    (&mut lo[t * nx..], (t + 2 < h).then(|| &mut hi[nx..2 * nx]))
+/// The first `K` lines of `nx` values of `w`.
+fn lines_of<const K: usize>(w: &mut [f64], nx: usize) -> [&mut [f64]; K] {
+    let mut it = w.chunks_exact_mut(nx);
+    std::array::from_fn(|_| it.next().expect("enough scratch lines"))
+}
+
+/// Row `t` of `rows` (rows of `nx`).
+fn row_mut(rows: &mut [f64], t: usize, nx: usize) -> &mut [f64] {
+    &mut rows[t * nx..(t + 1) * nx]
+}
+
+/// Rows `t1` and `t2 != t1` of `rows` (rows of `nx`), in that order.
+fn two_rows(rows: &mut [f64], t1: usize, t2: usize, nx: usize) -> (&mut [f64], &mut [f64]) {
+    assert_ne!(t1, t2, "two different rows");
+    let (lo, hi) = rows.split_at_mut(t1.max(t2) * nx);
+    let (low, high) = (&mut lo[t1.min(t2) * nx..(t1.min(t2) + 1) * nx], &mut hi[..nx]);
+    if t1 < t2 {
+        (low, high)
+    } else {
+        (high, low)
+    }
 }
 
 /// Solves `R` even rows of a block, `t, t + 2, ...` (local row numbers, from 2 on), of kind
@@ -1064,6 +1337,33 @@ fn solve_even<'b, const R: usize>(
     let s = std::array::from_fn(|r| row(t + 2 * r - 1));
     let n = std::array::from_fn(|r| row(t + 2 * r + 1));
     xl.solve_rows::<R>(kind, out, f, s, n, cy);
+}
+
+/// Solves `R` rows of a block that the second step eliminated, `t, t + 4, ...` (local row
+/// numbers), from the rows two below and above them: `D u = F + c1 (u_s + u_n)` with `F` in
+/// place, by the two factors of `D = T^2 - 2 c1` in turn (`w` holds at least `R` scratch
+/// lines).
+#[inline]
+fn solve_twice<const R: usize>(xl: &XLines, rows: &mut [f64], t: usize, nx: usize, c1: f64, w: &mut [f64]) {
+    let h = rows.len() / nx;
+    assert!(t >= 2 && t + 4 * (R - 1) + 2 < h, "rows inside the block");
+    let p = rows.as_mut_ptr();
+    // SAFETY: the rows written (t + 4 r) and read (t + 4 r, t + 4 r +- 2) are inside `rows`,
+    // which this call borrows mutably; the ones read by the first solve are only read, and
+    // each row the second writes is read by neither solve meanwhile.
+    let row = |r: usize| -> &[f64] { unsafe { std::slice::from_raw_parts(p.add(r * nx), nx) } };
+    let mut lines = w.chunks_exact_mut(nx);
+    let mid: [&mut [f64]; R] = std::array::from_fn(|_| lines.next().expect("enough scratch lines"));
+    let f = std::array::from_fn(|r| row(t + 4 * r));
+    let s = std::array::from_fn(|r| row(t + 4 * r - 2));
+    let n = std::array::from_fn(|r| row(t + 4 * r + 2));
+    xl.solve_rows::<R>(LOWER, mid, f, s, n, c1);
+    let mut lines = w.chunks_exact(nx);
+    let mid: [&[f64]; R] = std::array::from_fn(|_| lines.next().expect("enough scratch lines"));
+    let out: [&mut [f64]; R] =
+        std::array::from_fn(|r| unsafe { std::slice::from_raw_parts_mut(p.add((t + 4 * r) * nx), nx) });
+    let zeros = [&xl.zero[..]; R];
+    xl.solve_rows::<R>(UPPER, out, mid, zeros, zeros, 0.0);
 }
 
 /// A raw pointer that rayon tasks may share (each accesses a disjoint part).
@@ -1168,37 +1468,52 @@ mod tests {
                         }
                         let a = Stencil5::diffusion(&grid, &mask, sides, kx, ky).unwrap();
                         let mut t = Transform::new(&a).expect("qualifies");
-                        if kx < 100.0 && ny > 100 {
-                            assert!(t.y.rows < ny / 4, "pivots settle: {} rows", t.y.rows);
-                        }
-                        if kx > 100.0 && !fx {
-                            // Mode 0 between closed x ends has pivots creeping by m per row.
-                            assert_eq!(t.y.rows, ny / 2 - 1, "huge couplings never settle");
-                        }
-                        let b: Vec<f64> = (0..nx * ny).map(|k| ((k * 37) % 11) as f64 - 4.0).collect();
-                        let mut x = vec![0.0; nx * ny];
-                        let (bb, rr) = t.solve(&a, &b, &mut x);
-                        let bn = b.iter().map(|v| v * v).sum::<f64>().sqrt();
-                        let rel = a.residual_sq(&b, &x).sqrt() / bn;
-                        // The sums formed on the way equal the plain ones to round-off.
-                        assert!((bb.sqrt() - bn).abs() <= 1e-12 * bn);
-                        assert!(
-                            (rr.sqrt() / bn - rel).abs() <= 1e-3 * rel + 1e-18,
-                            "{} vs {rel:e}",
-                            rr.sqrt() / bn
-                        );
-                        let case = format!("{nx}x{ny} fixed x {fx}, south {fs}, north {fn_}, k {kx:e}");
-                        // Normwise backward error (Higham 2002, Accuracy and Stability of
-                        // Numerical Algorithms, eq. 1.2 and ch. 7): the residual against
-                        // ||A|| ||x|| + ||b||, which is what round-off alone allows when the
-                        // couplings dwarf the identity.
-                        let c = a.compact.as_ref().unwrap().k;
-                        let norm_a = c.m + 2.0 * (c.cx + c.gx) + 2.0 * (c.cy + c.gy);
-                        let xn = x.iter().map(|v| v * v).sum::<f64>().sqrt();
-                        let back = a.residual_sq(&b, &x).sqrt() / (norm_a * xn + bn);
-                        assert!(back < 1e-15, "{case}: backward error {back:e}");
-                        if kx < 100.0 {
-                            assert!(rel < 1e-13, "{case}: relative residual {rel:e}");
+                        for levels in [1, 2] {
+                            assert!(t.refresh_levels(&a, Some(levels)));
+                            // Field rows per solved row.
+                            let st = 2 * levels;
+                            if kx < 100.0 && ny > 100 {
+                                assert!(t.y.rows < ny / (2 * st), "pivots settle: {} rows", t.y.rows);
+                            }
+                            if kx > 100.0 && !fx {
+                                // Mode 0 between closed x ends has pivots creeping by m per row.
+                                assert_eq!(t.y.rows, ny / st - 1, "huge couplings never settle");
+                            }
+                            let b: Vec<f64> = (0..nx * ny).map(|k| ((k * 37) % 11) as f64 - 4.0).collect();
+                            let mut x = vec![0.0; nx * ny];
+                            let (bb, rr) = t.solve(&a, &b, &mut x);
+                            let bn = b.iter().map(|v| v * v).sum::<f64>().sqrt();
+                            let rel = a.residual_sq(&b, &x).sqrt() / bn;
+                            // The sums formed on the way equal the plain ones to round-off.
+                            assert!((bb.sqrt() - bn).abs() <= 1e-12 * bn);
+                            assert!(
+                                (rr.sqrt() / bn - rel).abs() <= 1e-3 * rel + 1e-18,
+                                "{} vs {rel:e}",
+                                rr.sqrt() / bn
+                            );
+                            let case =
+                                format!("{nx}x{ny} fixed x {fx}, south {fs}, north {fn_}, k {kx:e}, {levels} steps");
+                            // Normwise backward error (Higham 2002, Accuracy and Stability of
+                            // Numerical Algorithms, eq. 1.2 and ch. 7): the residual against
+                            // ||A|| ||x|| + ||b||, which is what round-off alone allows when the
+                            // couplings dwarf the identity.
+                            let c = a.compact.as_ref().unwrap().k;
+                            let norm_a = c.m + 2.0 * (c.cx + c.gx) + 2.0 * (c.cy + c.gy);
+                            let xn = x.iter().map(|v| v * v).sum::<f64>().sqrt();
+                            let back = a.residual_sq(&b, &x).sqrt() / (norm_a * xn + bn);
+                            // Twice reduced, round-off grows as the square of the spread of the
+                            // x operator (see MAX_SPREAD); measured 3.3e-15 at spread 11 here.
+                            let t0 = c.m + 2.0 * c.cy;
+                            let spread = (t0 + 4.0 * c.cx) / t0;
+                            let bound = if levels == 1 {
+                                1e-15
+                            } else {
+                                (spread * spread * f64::EPSILON).max(1e-15)
+                            };
+                            assert!(back < bound, "{case}: backward error {back:e}");
+                            if kx < 100.0 {
+                                assert!(rel < 1e-13, "{case}: relative residual {rel:e}");
+                            }
                         }
                     }
                 }
@@ -1206,11 +1521,12 @@ mod tests {
         }
     }
 
-    /// Short fields, where the cyclic reduction leaves one or two kept rows and both ends
-    /// are eliminated or kept (heights 3 to 9), solve to round-off with every pair of y ends.
+    /// Short fields, where the cyclic reduction leaves two or three rows and the end rows are
+    /// eliminated or kept at each step (heights 8 to 17: every residue of `ny` modulo 4, the
+    /// shortest the solver takes), solve to round-off with every pair of y ends.
     #[test]
     fn solves_short_fields() {
-        for ny in 3..=9 {
+        for ny in 8..=17 {
             let nx = 7;
             let grid = Grid::new(nx, ny, 1.0, 1.0, 0.0, 0.0).unwrap();
             let mask = Mask::all_water(&grid);
@@ -1225,12 +1541,18 @@ mod tests {
                 }
                 let a = Stencil5::diffusion(&grid, &mask, sides, 4.0, 11.0).unwrap();
                 let mut t = Transform::new(&a).expect("qualifies");
-                let b: Vec<f64> = (0..nx * ny).map(|k| ((k * 17) % 7) as f64 - 2.5).collect();
-                let mut x = vec![0.0; nx * ny];
-                let (bb, rr) = t.solve(&a, &b, &mut x);
-                let rel = a.residual_sq(&b, &x).sqrt() / bb.sqrt();
-                assert!(rel < 1e-14, "ny {ny} south {fs} north {fn_}: residual {rel:e}");
-                assert!((rr.sqrt() / bb.sqrt() - rel).abs() <= 1e-3 * rel + 1e-18);
+                for levels in [1, 2] {
+                    assert!(t.refresh_levels(&a, Some(levels)));
+                    let b: Vec<f64> = (0..nx * ny).map(|k| ((k * 17) % 7) as f64 - 2.5).collect();
+                    let mut x = vec![0.0; nx * ny];
+                    let (bb, rr) = t.solve(&a, &b, &mut x);
+                    let rel = a.residual_sq(&b, &x).sqrt() / bb.sqrt();
+                    assert!(
+                        rel < 1e-14,
+                        "ny {ny} south {fs} north {fn_}, {levels} steps: residual {rel:e}"
+                    );
+                    assert!((rr.sqrt() / bb.sqrt() - rel).abs() <= 1e-3 * rel + 1e-18);
+                }
             }
         }
     }
@@ -1247,23 +1569,57 @@ mod tests {
         let a = Stencil5::diffusion(&grid, &mask, sides, 6.0, 9.0).unwrap();
         let b: Vec<f64> = (0..nx * ny).map(|k| ((k * 29) % 13) as f64 - 6.0).collect();
         let mut t = Transform::new(&a).expect("qualifies");
-        let mut first: Option<Vec<f64>> = None;
-        for lines in [42, 4, 6, 8, 10, 40] {
-            t.set_lines(lines);
-            let mut x = vec![0.0; nx * ny];
-            let (bb, rr) = t.solve(&a, &b, &mut x);
-            let bn = bb.sqrt();
-            let rel = a.residual_sq(&b, &x).sqrt() / bn;
-            assert!(rel < 1e-13, "blocks of {lines} rows: residual {rel:e}");
-            assert!((rr.sqrt() / bn - rel).abs() <= 1e-3 * rel + 1e-18);
-            let one = first.get_or_insert_with(|| x.clone());
-            let diff = x.iter().zip(one.iter()).map(|(p, q)| (p - q).abs()).fold(0.0, f64::max);
-            assert!(diff < 1e-12, "blocks of {lines} rows: differs by {diff:e}");
+        for levels in [1, 2] {
+            assert!(t.refresh_levels(&a, Some(levels)));
+            let mut first: Option<Vec<f64>> = None;
+            for lines in [42, 4, 8, 12, 16, 20, 36] {
+                t.set_lines(lines);
+                let mut x = vec![0.0; nx * ny];
+                let (bb, rr) = t.solve(&a, &b, &mut x);
+                let bn = bb.sqrt();
+                let rel = a.residual_sq(&b, &x).sqrt() / bn;
+                assert!(rel < 1e-13, "blocks of {lines} rows: residual {rel:e}");
+                assert!((rr.sqrt() / bn - rel).abs() <= 1e-3 * rel + 1e-18);
+                let one = first.get_or_insert_with(|| x.clone());
+                let diff = x.iter().zip(one.iter()).map(|(p, q)| (p - q).abs()).fold(0.0, f64::max);
+                assert!(diff < 1e-12, "blocks of {lines} rows: differs by {diff:e}");
+            }
         }
     }
 
-    /// Land, periodic sides and a fixed value on one x side only are refused (the multigrid path
-    /// handles them).
+    /// Cells much wider than tall with a large time step spread the x operator's eigenvalues
+    /// widely: the solver then takes one reduction step, whose round-off grows only as the
+    /// spread, and two steps (whose round-off grows as its square) would leave a residual many
+    /// times larger; isotropic cells take two.
+    #[test]
+    fn chooses_the_reduction_steps_by_spread() {
+        let b = |n: usize| (0..n).map(|k| ((k * 23) % 17) as f64 - 8.0).collect::<Vec<f64>>();
+        let solve = |t: &mut Transform, a: &Stencil5| {
+            let (nx, ny) = (a.nx, a.ny);
+            let b = b(nx * ny);
+            let mut x = vec![0.0; nx * ny];
+            let (bb, _) = t.solve(a, &b, &mut x);
+            a.residual_sq(&b, &x).sqrt() / bb.sqrt()
+        };
+        // Isotropic: spread (1 + 20 + 40) / 21 < 3.
+        let grid = Grid::new(48, 40, 1.0, 1.0, 0.0, 0.0).unwrap();
+        let a = Stencil5::diffusion(&grid, &Mask::all_water(&grid), Sides::closed(), 10.0, 10.0).unwrap();
+        let mut t = Transform::new(&a).expect("qualifies");
+        assert_eq!(t.y.levels, 2);
+        assert!(solve(&mut t, &a) < 1e-14);
+        // cx = 1000, cy = 10 / 9: spread about 1250.
+        let grid = Grid::new(48, 40, 0.1, 3.0, 0.0, 0.0).unwrap();
+        let a = Stencil5::diffusion(&grid, &Mask::all_water(&grid), Sides::closed(), 10.0, 10.0).unwrap();
+        let mut t = Transform::new(&a).expect("qualifies");
+        assert_eq!(t.y.levels, 1);
+        let once = solve(&mut t, &a);
+        assert!(t.refresh_levels(&a, Some(2)));
+        let twice = solve(&mut t, &a);
+        assert!(once < 1e-12 && twice > 10.0 * once, "once {once:e}, twice {twice:e}");
+    }
+
+    /// Land, periodic sides, a fixed value on one x side only and fields under 8 rows high are
+    /// refused (the multigrid path handles them).
     #[test]
     fn refuses_what_it_cannot_diagonalise() {
         let grid = Grid::new(12, 10, 1.0, 1.0, 0.0, 0.0).unwrap();
@@ -1287,5 +1643,8 @@ mod tests {
         assert!(mask.has_land());
         let l = Stencil5::diffusion(&grid, &mask, Sides::closed(), 5.0, 5.0).unwrap();
         assert!(Transform::new(&l).is_none());
+        let short = Grid::new(12, 7, 1.0, 1.0, 0.0, 0.0).unwrap();
+        let a = Stencil5::diffusion(&short, &Mask::all_water(&short), Sides::closed(), 5.0, 5.0).unwrap();
+        assert!(Transform::new(&a).is_none());
     }
 }
