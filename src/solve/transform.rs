@@ -1523,11 +1523,11 @@ mod tests {
 
     /// Short fields, where the cyclic reduction leaves two or three rows and the end rows are
     /// eliminated or kept at each step (heights 8 to 17: every residue of `ny` modulo 4, the
-    /// shortest the solver takes), solve to round-off with every pair of y ends.
+    /// shortest the solver takes; and the narrowest, 3 cells wide), solve to round-off with
+    /// every pair of y ends.
     #[test]
     fn solves_short_fields() {
-        for ny in 8..=17 {
-            let nx = 7;
+        for (nx, ny) in (8..=17).map(|ny| (7, ny)).chain([(3, 8), (3, 13)]) {
             let grid = Grid::new(nx, ny, 1.0, 1.0, 0.0, 0.0).unwrap();
             let mask = Mask::all_water(&grid);
             for (fs, fn_) in [(false, false), (true, false), (false, true), (true, true)] {
