@@ -461,7 +461,7 @@ impl XLines {
 /// dozen rows unless `cy / m` is very large.
 #[derive(Debug, Clone)]
 struct Tridiag {
-    /// Cyclic reduction steps: 1, or 2 when the round-off allows (see [`Transform::refresh`]).
+    /// Cyclic reduction steps: 1, or 2 when the round-off allows (see [`MAX_SPREAD`]).
     levels: usize,
     /// Rows of the solved system: the once-reduced one (field rows `2 k + 1`) or the
     /// twice-reduced one (field rows `4 k + 3`).
@@ -649,8 +649,8 @@ impl Tridiag {
 
     /// Forward elimination within one block of solved rows, in place on `rows` (field rows
     /// from row `stride i0` on, so rows `stride - 1, 2 stride - 1, ...` of `rows` are solved
-    /// rows `i0 ..`; see [`Self::stride`]), as if the row before the block were zero, with the right-hand side scaled by `s`:
-    /// `h_i = (s f_i + c h_{i-1}) / p_i`. The true forward values are
+    /// rows `i0 ..`; see [`Self::stride`]), as if the row before the block were zero, with the
+    /// right-hand side scaled by `s`: `h_i = (s f_i + c h_{i-1}) / p_i`. The true forward values are
     /// `g_i = h_i + E_i G` with `G` the block below's last `g`, `E_i = e_{i0} ... e_i` and
     /// `e_i = c / p_i` (the partition method: blocks eliminate independently and are linked
     /// by a short sweep, [`Self::link`]). For the back substitution `u_i = g_i + e_i u_{i+1}`
@@ -948,7 +948,8 @@ impl Transform {
         t.refresh(a).then_some(t)
     }
 
-    /// Blocks of `lines` rows (rounded up to a multiple of 4, at least 8) from now on.
+    /// Blocks of `lines` rows (rounded up to a multiple of 4, at least 8; the last block takes
+    /// a remainder under 8 rows) from now on.
     fn set_lines(&mut self, lines: usize) {
         let (nx, ny) = (self.nx, self.ny);
         let lines = lines.max(8).next_multiple_of(4);
@@ -1017,11 +1018,11 @@ impl Transform {
     /// `x = A^-1 b` for the operator `a` the solver was built or refreshed for (no
     /// allocation); returns `(b . b, ||b - A x||^2)`, both summed per row block in block order.
     ///
-    /// Two steps of cyclic reduction in y first (FACR(2): Hockney 1970, Methods in
+    /// One or two steps of cyclic reduction in y first (FACR(l): Hockney 1970, Methods in
     /// Computational Physics 9, 135-211; Swarztrauber 1977, SIAM Review 19, 490-501): only the
-    /// rows `4 k + 3` (and field row 1, and the last odd row when the odd rows are an odd
-    /// count) are transformed, and the others are recovered by tridiagonal solves along x (see
-    /// [`Tridiag`]). Two passes over the field, with short ones between and after: blocks of
+    /// odd rows, or the rows `4 k + 3` (and field row 1, and the last odd row when the odd rows
+    /// are an odd count), are transformed, and the others are recovered by tridiagonal solves
+    /// along x (see [`Tridiag`]). Two passes over the field, with short ones between and after: blocks of
     /// rows form the reduced right-hand sides, transform them along x (and sum `b . b`) and
     /// eliminate them along y while in cache, as if the block below were zero (every mode at
     /// once, so the loops vectorise); column ranges link the blocks (one row per block, see
