@@ -843,7 +843,7 @@ pub(crate) struct Transform {
 const MAX_SPREAD: f64 = 16.0;
 
 /// Real scratch lines per block of [`Transform::solve`].
-const SCRATCH_LINES: usize = 8;
+const SCRATCH_LINES: usize = 7;
 
 /// How `c` (on `nx` by `ny` cells, not periodic) ends: the x ends as a pair and whether the
 /// south and the north ends are fixed, if it is a rectangle of water with closed or fixed x
@@ -1093,7 +1093,7 @@ impl Transform {
                 let (j0, j1) = blocks[blk];
                 let h = j1 - j0;
                 let (z, fs) = s.split_at_mut(nx);
-                let [ws, wn, fj, tl, up, ra, rb, _] = lines_of::<SCRATCH_LINES>(w, nx);
+                let [ws, wn, fj, tl, up, ra, rb] = lines_of::<SCRATCH_LINES>(w, nx);
                 let src = &b[j0 * nx..j1 * nx];
                 part[0] = dot_lanes(src, src);
                 // The eliminated end rows' right-hand sides, for the odd rows beside them.
