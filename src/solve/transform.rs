@@ -1027,9 +1027,9 @@ impl Transform {
     /// eliminate them along y while in cache, as if the block below were zero (every mode at
     /// once, so the loops vectorise); column ranges link the blocks (one row per block, see
     /// [`Tridiag::link`]); blocks of rows finish the elimination and back-substitute,
-    /// transform back, recover their rows but the first three along x and sum their residual
-    /// rows while in cache; and each block's first three rows are recovered and the rows
-    /// around them summed last.
+    /// transform back, recover their rows but the first one (three, twice reduced) along x and
+    /// sum their residual rows while in cache; and those first rows of each block are
+    /// recovered and the rows around them summed last.
     pub fn solve(&mut self, a: &Stencil5, b: &[f64], x: &mut [f64]) -> (f64, f64) {
         let Self {
             nx,
@@ -1065,6 +1065,10 @@ impl Transform {
         let (st, twice) = (ty.stride(), ty.levels == 2);
         let top = (twice && ty.north_spectral()).then(|| 2 * ty.n1 - 1);
         let spectral = |j: usize| twice && (j == 1 || Some(j) == top);
+        // Rows at the start of each block that need the block below, recovered last: the
+        // first even row, and twice reduced also the row 4 k + 1 after it and the even row
+        // after that.
+        let edge = if twice { 3 } else { 1 };
         // Each such row with the kept row beside it and its weights (see `Tridiag::south`).
         let spectral_rows = [(1, 3, &ty.south)]
             .into_iter()
@@ -1228,9 +1232,9 @@ impl Transform {
                         t += 4;
                     }
                 }
-                // Even rows but the first two: both neighbours are in the block (or beyond
-                // the north end).
-                let mut t = 4;
+                // Even rows but the edge rows: both neighbours are in the block (or beyond the
+                // north end).
+                let mut t = edge + 1;
                 while t < h {
                     if t + 2 * GROUP <= h {
                         solve_even::<GROUP>(xl, rows, t, INTERIOR, nx, brow, j0, cy);
@@ -1244,19 +1248,20 @@ impl Transform {
                 // upper one is not, unless it lies beyond the north end).
                 let line = |r: usize| if r < h { &rows[r * nx..(r + 1) * nx] } else { zero };
                 let stop = if blk + 1 == nb { h } else { h - 1 };
-                part[1] = (4..stop)
+                part[1] = (edge + 1..stop)
                     .map(|r| res_row(j0 + r, line(r - 1), line(r), line(r + 1)))
                     .sum();
             });
-        // Each block's first three rows, then the residual rows around them.
+        // Each block's edge rows, then the residual rows around them.
         partial
             .par_iter_mut()
             .zip(lines_scratch.par_chunks_mut(SCRATCH_LINES * nx))
             .enumerate()
             .for_each(|(blk, (part, w))| {
                 let j0 = blocks[blk].0;
-                // SAFETY: this task alone writes rows j0 ..= j0 + 2 in this pass; it reads rows
-                // j0 - 2 ..= j0 + 4 (inside the field), which no other task writes in this pass
+                // SAFETY: this task alone writes rows j0 .. j0 + edge (edge <= 3) in this pass; it
+                // reads rows j0 - 2 ..= j0 + edge + 1 (inside the field), which no other task
+                // writes in this pass
                 // (blocks are at least 8 rows, so the nearest rows other tasks write are j0 - 6
                 // and j0 + 8).
                 let row = |j: usize| unsafe { std::slice::from_raw_parts(xp.ptr().add(j * nx), nx) };
@@ -1266,13 +1271,13 @@ impl Transform {
                     xl.solve_rows::<1>(LOWER, [&mut *mid], [row(j0 + 1)], [row(j0 - 1)], [row(j0 + 3)], c1);
                     xl.solve_rows::<1>(UPPER, [out(j0 + 1)], [&*mid], [zero], [zero], 0.0);
                 }
-                for j in [j0, j0 + 2] {
+                for j in (j0..j0 + edge).step_by(2) {
                     let s = if j > 0 { row(j - 1) } else { zero };
                     xl.solve_rows::<1>(row_kind(j, ny), [out(j)], [brow(j)], [s], [row(j + 1)], cy);
                 }
                 // The field's end rows get zeros for their missing neighbour (their coefficient
                 // is zero), not the row across the field, which another task may be writing.
-                for j in j0.saturating_sub(1)..=j0 + 3 {
+                for j in j0.saturating_sub(1)..=j0 + edge {
                     let xs = if j > 0 { row(j - 1) } else { zero };
                     let xn = if j + 1 < ny { row(j + 1) } else { zero };
                     part[1] += res_row(j, xs, row(j), xn);
