@@ -357,14 +357,22 @@ impl XLines {
     /// operator).
     fn kept_rhs(&self, out: &mut [f64], f: &[f64], hs: &[f64], hn: &[f64], cy: f64) {
         let n = self.zero.len();
-        let (out, f, hs, hn) = (&mut out[..n], &f[..n], &hs[..n], &hn[..n]);
+        let (hs, hn) = (&hs[..n], &hn[..n]);
+        self.apply_t(out, f, |i| cy * (hs[i] + hn[i]));
+    }
+
+    /// `out_i = (T f)_i + y(i)` with the interior `T`.
+    #[inline(always)]
+    fn apply_t(&self, out: &mut [f64], f: &[f64], y: impl Fn(usize) -> f64) {
+        let n = self.zero.len();
+        let (out, f) = (&mut out[..n], &f[..n]);
         let (cx, b) = (self.cx, self.b[INTERIOR]);
         let (d, dend) = (b + 2.0 * cx, b + cx + self.ends);
-        out[0] = dend * f[0] - cx * f[1] + cy * (hs[0] + hn[0]);
+        out[0] = dend * f[0] - cx * f[1] + y(0);
         for i in 1..n - 1 {
-            out[i] = d * f[i] - cx * (f[i - 1] + f[i + 1]) + cy * (hs[i] + hn[i]);
+            out[i] = d * f[i] - cx * (f[i - 1] + f[i + 1]) + y(i);
         }
-        out[n - 1] = dend * f[n - 1] - cx * f[n - 2] + cy * (hs[n - 1] + hn[n - 1]);
+        out[n - 1] = dend * f[n - 1] - cx * f[n - 2] + y(n - 1);
     }
 
     /// `out = D f + c (fs + fn) = T (T f) + c (fs + fn - 2 f)` with `D = T^2 - 2 c`, `c = cy^2`
@@ -373,16 +381,9 @@ impl XLines {
     /// scratch.
     fn reduced_rhs(&self, out: &mut [f64], f: &[f64], fs: &[f64], fn_: &[f64], c: f64, t: &mut [f64]) {
         let n = self.zero.len();
-        self.kept_rhs(t, f, &self.zero, &self.zero, 0.0);
-        let (out, t, f, fs, fn_) = (&mut out[..n], &t[..n], &f[..n], &fs[..n], &fn_[..n]);
-        let (cx, b) = (self.cx, self.b[INTERIOR]);
-        let (d, dend) = (b + 2.0 * cx, b + cx + self.ends);
-        let y = |i: usize| c * (fs[i] + fn_[i] - 2.0 * f[i]);
-        out[0] = dend * t[0] - cx * t[1] + y(0);
-        for i in 1..n - 1 {
-            out[i] = d * t[i] - cx * (t[i - 1] + t[i + 1]) + y(i);
-        }
-        out[n - 1] = dend * t[n - 1] - cx * t[n - 2] + y(n - 1);
+        self.apply_t(t, f, |_| 0.0);
+        let (f, fs, fn_) = (&f[..n], &fs[..n], &fn_[..n]);
+        self.apply_t(out, t, |i| c * (fs[i] + fn_[i] - 2.0 * f[i]));
     }
 
     /// Solves `T_kind out_r = f_r + cy (s_r + n_r)` for `R` rows at once (their recurrences
@@ -440,7 +441,7 @@ impl XLines {
     }
 }
 
-/// The y systems left after two steps of cyclic reduction, one per x mode, factored.
+/// The y systems left after one or two steps of cyclic reduction, one per x mode, factored.
 ///
 /// Row `j` of the transformed operator reads `-cy u_{j-1} + tau_j u_j - cy u_{j+1} = f_j` with
 /// `tau_j = a + y_j` (`a = m + lx_k`, `y_j` as in [`XLines`]). The first step eliminates the
@@ -448,7 +449,8 @@ impl XLines {
 /// `tau`, which leaves on the odd rows `i = 0 .. n1` (row `j = 2 i + 1`) the tridiagonal
 /// system `-c1 u_{i-1} + delta_i u_i - c1 u_{i+1} = F_i` with `c1 = cy^2`,
 /// `delta = D = tau^2 - 2 c1` inside, and end rows `delta_0`, `delta_{n1-1}` adjusted for the
-/// end `tau`s. The second step eliminates its even rows `i` again: the inside ones
+/// end `tau`s; once reduced, this is the system solved. The second step (twice reduced)
+/// eliminates its even rows `i` again: the inside ones
 /// (`D u_i = F_i + c1 (u_{i-1} + u_{i+1})`, solved along x after the transform) and the end
 /// rows among them in the transformed space (`u_i = (F_i + c1 u_{i+-1}) / delta_i`). Multiplied
 /// by `D`, the odd rows `i = 2 k + 1` (field row `4 k + 3`) then read
@@ -647,16 +649,16 @@ impl Tridiag {
         }
     }
 
-    /// Forward elimination within one block of solved rows, in place on `rows` (field rows
-    /// from row `stride i0` on, so rows `stride - 1, 2 stride - 1, ...` of `rows` are solved
-    /// rows `i0 ..`; see [`Self::stride`]), as if the row before the block were zero, with the
-    /// right-hand side scaled by `s`: `h_i = (s f_i + c h_{i-1}) / p_i`. The true forward values are
-    /// `g_i = h_i + E_i G` with `G` the block below's last `g`, `E_i = e_{i0} ... e_i` and
-    /// `e_i = c / p_i` (the partition method: blocks eliminate independently and are linked
-    /// by a short sweep, [`Self::link`]). For the back substitution `u_i = g_i + e_i u_{i+1}`
-    /// it sums, for all modes, `H = sum_i P_i h_i`, `K = sum_i P_i P_{i+1}` and `P = P_{i1}`
-    /// with `P_{i0} = 1`, `P_{i+1} = P_i e_i`, so that the block's first `u` is
-    /// `H + K G + P u_{i1}`. `zero` is a row of zeros (the forward value before the block).
+    /// Forward elimination within one block of solved rows, in place on `rows` (field rows from row
+    /// `stride i0` on, so rows `stride - 1, 2 stride - 1, ...` of `rows` are solved rows `i0 ..`;
+    /// see [`Self::stride`]), as if the row before the block were zero, with the right-hand side
+    /// scaled by `s`: `h_i = (s f_i + c h_{i-1}) / p_i`. The true forward values are `g_i = h_i +
+    /// E_i G` with `G` the block below's last `g`, `E_i = e_{i0} ... e_i` and `e_i = c / p_i` (the
+    /// partition method: blocks eliminate independently and are linked by a short sweep,
+    /// [`Self::link`]). For the back substitution `u_i = g_i + e_i u_{i+1}` it sums, for all modes,
+    /// `H = sum_i P_i h_i`, `K = sum_i P_i P_{i+1}` and `P = P_{i1}` with `P_{i0} = 1`, `P_{i+1} =
+    /// P_i e_i`, so that the block's first `u` is `H + K G + P u_{i1}`. `zero` is a row of zeros
+    /// (the forward value before the block).
     fn eliminate_block(&self, rows: &mut [f64], i0: usize, s: f64, sums: [&mut [f64]; 3], zero: &[f64]) {
         let (nx, c, st) = (self.last.len(), self.c, self.stride());
         let [sh, sk, sp] = sums;
@@ -812,7 +814,7 @@ pub(crate) struct Transform {
     lines: usize,
     /// Per block: its field rows `j0 .. j1`.
     blocks: Vec<(usize, usize)>,
-    /// Per block: one past its last twice-reduced row.
+    /// Per block: one past its last solved row (see [`Tridiag::stride`]).
     ends: Vec<usize>,
     /// Column ranges of [`Tridiag::link`], one parallel task each.
     columns: Vec<(usize, usize)>,
@@ -1019,17 +1021,17 @@ impl Transform {
     /// allocation); returns `(b . b, ||b - A x||^2)`, both summed per row block in block order.
     ///
     /// One or two steps of cyclic reduction in y first (FACR(l): Hockney 1970, Methods in
-    /// Computational Physics 9, 135-211; Swarztrauber 1977, SIAM Review 19, 490-501): only the
-    /// odd rows, or the rows `4 k + 3` (and field row 1, and the last odd row when the odd rows
-    /// are an odd count), are transformed, and the others are recovered by tridiagonal solves
-    /// along x (see [`Tridiag`]). Two passes over the field, with short ones between and after: blocks of
-    /// rows form the reduced right-hand sides, transform them along x (and sum `b . b`) and
-    /// eliminate them along y while in cache, as if the block below were zero (every mode at
-    /// once, so the loops vectorise); column ranges link the blocks (one row per block, see
-    /// [`Tridiag::link`]); blocks of rows finish the elimination and back-substitute,
-    /// transform back, recover their rows but the first one (three, twice reduced) along x and
-    /// sum their residual rows while in cache; and those first rows of each block are
-    /// recovered and the rows around them summed last.
+    /// Computational Physics 9, 135-211; Swarztrauber 1977, SIAM Review 19, 490-501): only the odd
+    /// rows, or the rows `4 k + 3` (and field row 1, and the last odd row when the odd rows are an
+    /// odd count), are transformed, and the others are recovered by tridiagonal solves along x (see
+    /// [`Tridiag`]). Two passes over the field, with short ones between and after: blocks of rows
+    /// form the reduced right-hand sides, transform them along x (and sum `b . b`) and eliminate
+    /// them along y while in cache, as if the block below were zero (every mode at once, so the
+    /// loops vectorise); column ranges link the blocks (one row per block, see [`Tridiag::link`]);
+    /// blocks of rows finish the elimination and back-substitute, transform back, recover their
+    /// rows but the first one (three, twice reduced) along x and sum their residual rows while in
+    /// cache; and those first rows of each block are recovered and the rows around them summed
+    /// last.
     pub fn solve(&mut self, a: &Stencil5, b: &[f64], x: &mut [f64]) -> (f64, f64) {
         let Self {
             nx,
@@ -1127,28 +1129,24 @@ impl Transform {
                 // The solved rows' right-hand sides, transformed in pairs: the first step's (odd
                 // rows, once reduced) or the second step's (rows 4 k + 3, twice reduced; the
                 // first step's one above the block's last row formed again here).
-                let reduced =
-                    |out: &mut [f64], rows: &[f64], t: usize, fj: &mut [f64], tl: &mut [f64], up: &mut [f64]| {
-                        let j = j0 + t;
-                        once(fj, j);
-                        let line = |r: usize| &rows[r * nx..(r + 1) * nx];
-                        let lower = if spectral(j - 2) { zero } else { line(t - 2) };
-                        let upper = if j + 2 >= ny || spectral(j + 2) {
-                            zero
-                        } else if t + 2 < h {
-                            line(t + 2)
-                        } else {
-                            once(up, j + 2);
-                            &*up
-                        };
-                        xl.reduced_rhs(out, fj, lower, upper, c1, tl);
-                    };
                 let mut rhs = |out: &mut [f64], rows: &[f64], t: usize| {
-                    if twice {
-                        reduced(out, rows, t, &mut *fj, &mut *tl, &mut *up);
-                    } else {
-                        once(out, j0 + t);
+                    let j = j0 + t;
+                    if !twice {
+                        once(out, j);
+                        return;
                     }
+                    once(fj, j);
+                    let line = |r: usize| &rows[r * nx..(r + 1) * nx];
+                    let lower = if spectral(j - 2) { zero } else { line(t - 2) };
+                    let upper = if j + 2 >= ny || spectral(j + 2) {
+                        zero
+                    } else if t + 2 < h {
+                        line(t + 2)
+                    } else {
+                        once(up, j + 2);
+                        &*up
+                    };
+                    xl.reduced_rhs(out, fj, lower, upper, c1, tl);
                 };
                 for t in (st - 1..h).step_by(2 * st) {
                     rhs(ra, rows, t);
