@@ -33,6 +33,7 @@ mod compact;
 pub mod krylov;
 pub mod multigrid;
 pub mod stencil;
+mod stream;
 mod transform;
 
 pub use krylov::{Method, SolveStats, Solver, SolverParams};
