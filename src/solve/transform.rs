@@ -25,8 +25,9 @@
 //! eigenvalues, so it is taken only where that spread is small ([`MAX_SPREAD`]; always for
 //! square cells). The elimination along y runs block by block while the rows are in cache,
 //! the blocks linked by a short sweep (the partition method). Cost `O(N log nx)`: FFTs of a
-//! quarter (or half) of the rows in parallel, no transposes, two passes over the field. Fields
-//! under 8 rows high are left to the multigrid path.
+//! quarter (or half) of the rows in parallel, no transposes, two passes over the field, each on
+//! a per-thread cached copy of a block of rows, large fields streamed back ([`on_rows`]).
+//! Fields under 8 rows high are left to the multigrid path.
 //!
 //! Which operators qualify is decided from the matrix-free form's per-cell flags, which
 //! reproduce the stored operator exactly, so the transform solves the same matrix.
