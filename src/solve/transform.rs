@@ -857,7 +857,8 @@ const MAX_SPREAD: f64 = 16.0;
 const STREAM_BYTES: usize = 16 << 20;
 
 thread_local! {
-    /// Per thread: the rows of the block that [`on_rows`] is working on.
+    /// Per thread: the rows of the block that [`on_rows`] is working on (grown to the largest
+    /// block the thread has seen, and kept for the thread's life).
     static STAGE: std::cell::RefCell<Vec<f64>> = const { std::cell::RefCell::new(Vec::new()) };
 }
 
@@ -1071,8 +1072,9 @@ impl Transform {
         self.ends.extend(self.blocks.iter().map(|&(_, j1)| (j1 / st).min(n)));
     }
 
-    /// `x = A^-1 b` for the operator `a` the solver was built or refreshed for (no
-    /// allocation); returns `(b . b, ||b - A x||^2)`, both summed per row block in block order.
+    /// `x = A^-1 b` for the operator `a` the solver was built or refreshed for (no allocation
+    /// but each thread's stage the first time); returns `(b . b, ||b - A x||^2)`, both summed
+    /// per row block in block order.
     ///
     /// One or two steps of cyclic reduction in y first (FACR(l): Hockney 1970, Methods in
     /// Computational Physics 9, 135-211; Swarztrauber 1977, SIAM Review 19, 490-501): only the odd
