@@ -29,8 +29,8 @@ pub struct BenchArgs {
     /// number 10, zero-flux sides, relative residual 1e-10, previous step as initial guess).
     #[arg(long)]
     implicit: bool,
-    /// Steps per size for `--implicit`.
-    #[arg(long, default_value_t = 7)]
+    /// Timed steps per size for `--implicit` (the median is reported).
+    #[arg(long, default_value_t = 16)]
     steps: usize,
     /// Solvers for `--implicit`: `transform` (what `auto` picks on this problem) and
     /// `multigrid_cg` (what runs with land or periodic sides use).
