@@ -1,0 +1,103 @@
+//! The `[grid]` section: cell counts, cell size or extent, origin, depth and the land image.
+
+use super::super::land;
+use super::super::reader::{Problems, Section};
+use super::{engine_problem, positive, required_table, GridOut, GRID, MAX_SIDE};
+use crate::grid::{Grid, MAX_CELLS};
+use std::path::Path;
+
+/// `[grid]`, including the land image.
+pub(super) fn grid_section(root: Section, path: &Path, p: &mut Problems) -> Option<GridOut> {
+    let s = required_table(root, "grid", p)?;
+    s.check_keys(GRID, "in [grid]", p);
+    let before = p.len();
+    let int = |key: &str, p: &mut Problems| {
+        if s.require(key, &format!("the number of cells {key}"), p) {
+            s.int(key, 1, MAX_SIDE, p)
+        } else {
+            None
+        }
+    };
+    let nx = int("nx", p);
+    let ny = int("ny", p);
+    let size = s.pair("size", p);
+    if s.has("size") && (s.has("dx") || s.has("dy")) {
+        p.add("grid.size", "give either size = [Lx, Ly] or dx (and dy), not both");
+    }
+    let size = size.and_then(|(lx, ly)| {
+        Some((
+            positive(Some(lx), "grid.size[0]", p)?,
+            positive(Some(ly), "grid.size[1]", p)?,
+        ))
+    });
+    let dx = positive(s.num("dx", p), "grid.dx", p);
+    let dy = positive(s.num("dy", p), "grid.dy", p);
+    if !s.has("size") && !s.has("dx") {
+        p.add(
+            "grid.dx",
+            "missing: give the cell size dx (and dy, default dx) or size = [Lx, Ly]",
+        );
+    }
+    let origin = if s.has("origin") {
+        s.pair("origin", p)
+    } else {
+        Some((0.0, 0.0))
+    };
+    let depth = if s.has("depth") {
+        positive(s.num("depth", p), "grid.depth", p)
+    } else {
+        Some(1.0)
+    };
+    let land = s.string("land", p);
+    let (nx, ny) = (nx?, ny?);
+    if nx.saturating_mul(ny) > MAX_CELLS as i64 {
+        p.add(
+            "grid",
+            format!(
+                "nx * ny = {} cells is above the limit of {MAX_CELLS}: use fewer cells",
+                nx * ny
+            ),
+        );
+        return None;
+    }
+    let (nx, ny) = (nx as usize, ny as usize);
+    let (dx, dy) = match size {
+        Some((lx, ly)) => (lx / nx as f64, ly / ny as f64),
+        None => {
+            let dx = dx?;
+            (dx, if s.has("dy") { dy? } else { dx })
+        }
+    };
+    if p.len() > before {
+        return None;
+    }
+    let (x0, y0) = origin?;
+    let grid = match Grid::new(nx, ny, dx, dy, x0, y0) {
+        Ok(g) => g,
+        Err(e) => {
+            p.0.push(engine_problem(&e));
+            return None;
+        }
+    };
+    let (mask, land) = match land {
+        None if s.has("land") => return None,
+        None => (None, None),
+        Some(rel) => {
+            let joined = path.parent().unwrap_or(Path::new("")).join(rel);
+            let file = std::path::absolute(&joined).unwrap_or(joined);
+            match land::load_mask(&file, &grid) {
+                Ok(m) => (Some(m), Some(file)),
+                Err(msg) => {
+                    p.add("grid.land", msg);
+                    return None;
+                }
+            }
+        }
+    };
+    Some(GridOut {
+        grid,
+        mask,
+        depth: depth?,
+        land,
+    })
+}

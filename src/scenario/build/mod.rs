@@ -1,0 +1,374 @@
+//! From TOML text to a validated [`Scenario`]: one reader per section, each collecting its
+//! problems, then the cross-checks (points on water, periodic pairs, releases within the run)
+//! and the engine's own checks (the model and the stable step).
+//!
+//! This file holds the entry point [`parse`], the schema of allowed keys ([`schema`]) and the
+//! helpers shared by the section readers; each section is read in its own file: `grid.rs`
+//! (`[grid]`), `tracer.rs` (`[tracer]`), `flow.rs` (`[flow]`, `[boundary]`), `sources.rs`
+//! (`[initial]`, `[[source]]`, `[[receptor]]`) and `scheme.rs` (`[scheme]`, `[run]`, `[output]`).
+
+mod flow;
+mod grid;
+mod scheme;
+mod sources;
+mod tracer;
+
+use self::flow::{boundary_section, flow_section};
+use self::grid::grid_section;
+use self::scheme::{output_section, run_section, scheme_section};
+use self::sources::{initial_section, receptor_section, source_section};
+use self::tracer::tracer_section;
+use super::reader::{check, type_name, Problems, Section};
+use super::{overrides, Problem, Scenario};
+use crate::error::ModelError;
+use crate::grid::{Grid, Mask};
+use crate::initial::Initial;
+use crate::model::{Model, ModelSpec};
+use crate::step::{max_step, Scheme};
+use std::path::{Path, PathBuf};
+use toml::{Table, Value};
+
+/// Largest accepted `grid.nx` or `grid.ny`.
+pub(super) const MAX_SIDE: i64 = 1 << 20;
+/// Largest accepted `run.frames`.
+pub(super) const MAX_FRAMES: i64 = 10_000;
+
+/// Top-level keys.
+pub(super) const TOP: &[&str] = &[
+    "name", "grid", "tracer", "flow", "boundary", "initial", "source", "receptor", "scheme", "run", "output",
+];
+/// `[grid]` keys.
+pub(super) const GRID: &[&str] = &["nx", "ny", "dx", "dy", "size", "origin", "depth", "land"];
+/// `[tracer]` keys.
+pub(super) const TRACER: &[&str] = &["name", "units", "diffusivity", "decay_rate", "t90"];
+/// `[flow]` kinds available in this version.
+pub(super) const FLOW_KINDS: &[&str] = &["uniform", "rotation", "swirl", "vortex"];
+/// Every `[flow]` key of any kind.
+pub(super) const FLOW_ALL: &[&str] = &["kind", "velocity", "centre", "period", "speed", "tide"];
+/// `flow.tide` keys (amplitude is recognised only to say it is not available yet).
+pub(super) const TIDE: &[&str] = &["period", "phase", "amplitude"];
+/// `[boundary]` keys.
+pub(super) const SIDES: &[&str] = &["west", "east", "south", "north"];
+/// Keys of a side given as a table.
+pub(super) const SIDE: &[&str] = &["kind", "value"];
+/// `[initial]` kinds.
+pub(super) const INITIAL_KINDS: &[&str] = &["zero", "uniform", "gaussian", "cone", "slotted_disk"];
+/// Every `[initial]` key of any kind.
+pub(super) const INITIAL_ALL: &[&str] = &[
+    "kind",
+    "value",
+    "centre",
+    "sigma",
+    "peak",
+    "radius",
+    "slot_width",
+    "slot_length",
+];
+/// `[[source]]` keys.
+pub(super) const SOURCE: &[&str] = &["name", "at", "mass", "rate", "start", "stop", "spread"];
+/// `[[receptor]]` keys.
+pub(super) const RECEPTOR: &[&str] = &["name", "at", "threshold"];
+/// `[scheme]` keys.
+pub(super) const SCHEME: &[&str] = &[
+    "convection",
+    "time",
+    "stages",
+    "courant",
+    "dt",
+    "theta",
+    "tolerance",
+    "max_iterations",
+];
+/// `[run]` keys.
+pub(super) const RUN: &[&str] = &["end", "frames", "log_every"];
+/// `[output]` keys.
+pub(super) const OUTPUT: &[&str] = &["dir", "colour", "range"];
+
+/// The allowed keys of the table at `parents` (names without indices), where known.
+pub(super) fn schema(parents: &[&str]) -> Option<&'static [&'static str]> {
+    Some(match parents {
+        [] => TOP,
+        ["grid"] => GRID,
+        ["tracer"] => TRACER,
+        ["flow"] => FLOW_ALL,
+        ["flow", "tide"] => TIDE,
+        ["boundary"] => SIDES,
+        ["boundary", _] => SIDE,
+        ["initial"] => INITIAL_ALL,
+        ["source"] => SOURCE,
+        ["receptor"] => RECEPTOR,
+        ["scheme"] => SCHEME,
+        ["run"] => RUN,
+        ["output"] => OUTPUT,
+        _ => return None,
+    })
+}
+
+/// The grid section resolved.
+struct GridOut {
+    grid: Grid,
+    mask: Option<Mask>,
+    depth: f64,
+    land: Option<PathBuf>,
+}
+
+/// Parses and validates; the error is every problem found. `allow_unstable` accepts a fixed
+/// step above the explicit stability bound (`--force`).
+pub(super) fn parse(text: &str, path: &Path, sets: &[String], allow_unstable: bool) -> Result<Scenario, Vec<Problem>> {
+    let mut doc: Table = match toml::from_str(text) {
+        Ok(t) => t,
+        Err(e) => return Err(vec![syntax_problem(text, &e)]),
+    };
+    let mut p = Problems::default();
+    let applied = overrides::apply(&mut doc, sets, &mut p);
+    let root = Section::new("", &doc);
+    root.check_keys(TOP, "at the top level", &mut p);
+
+    let name = scenario_name(root, path, &mut p);
+    let run = run_section(root, &mut p);
+    let grid = grid_section(root, path, &mut p);
+    let (tracer, kx, ky, decay_rate) = tracer_section(root, &mut p);
+    let flow = flow_section(root, &mut p);
+    let boundaries = boundary_section(root, &mut p);
+    let initial = initial_section(root, &mut p);
+    let sources = source_section(root, run.map(|r| r.end), grid.as_ref(), &mut p);
+    let receptors = receptor_section(root, grid.as_ref(), &mut p);
+    let scheme = scheme_section(root, &mut p);
+    let output = output_section(root, &mut p);
+
+    let result = match (name, run, grid, flow, boundaries, initial, sources, scheme, output) {
+        (
+            Some(name),
+            Some(run),
+            Some(g),
+            Some(flow),
+            Some(boundaries),
+            Some(initial),
+            Some(sources),
+            Some(mut scheme),
+            Some(output),
+        ) if p.len() == 0 => {
+            scheme.allow_unstable = allow_unstable;
+            let model = ModelSpec {
+                grid: g.grid,
+                mask: g.mask,
+                depth: g.depth,
+                kx,
+                ky,
+                decay_rate,
+                flow,
+                boundaries,
+                sources,
+            };
+            engine_checks(&model, &initial, &scheme, &mut p);
+            Some(Scenario {
+                name,
+                path: path.to_path_buf(),
+                model,
+                initial,
+                scheme,
+                run,
+                receptors,
+                output,
+                tracer,
+                land: g.land,
+            })
+        }
+        _ => None,
+    };
+    match result {
+        Some(s) if p.len() == 0 => Ok(s),
+        _ => {
+            let mut problems = p.0;
+            if problems.is_empty() {
+                // Every failed section records a problem; this is a guard, not an expected path.
+                problems.push(Problem {
+                    key: String::new(),
+                    message: "the scenario is incomplete".into(),
+                });
+            }
+            overrides::annotate(&mut problems, &applied);
+            // Report in the order of the sections in DESIGN §3 (malformed overrides first).
+            problems.sort_by_key(|q| {
+                let head = q.key.split(['.', '[']).next().unwrap_or("");
+                TOP.iter().position(|k| *k == head).map_or(0, |i| i + 1)
+            });
+            Err(problems)
+        }
+    }
+}
+
+/// A TOML syntax error as one problem naming its line and column.
+fn syntax_problem(text: &str, e: &toml::de::Error) -> Problem {
+    let start = e.span().map_or(0, |s| s.start).min(text.len());
+    let before = &text.as_bytes()[..start];
+    let line = before.iter().filter(|&&b| b == b'\n').count() + 1;
+    let line_start = before.iter().rposition(|&b| b == b'\n').map_or(0, |k| k + 1);
+    let column = String::from_utf8_lossy(&before[line_start..]).chars().count() + 1;
+    Problem {
+        key: format!("line {line}, column {column}"),
+        message: format!("TOML syntax error: {}", e.message().trim()).replace(['\n', '\r'], " "),
+    }
+}
+
+/// Maps an engine error to a problem keyed by the quantity it names.
+fn engine_problem(e: &ModelError) -> Problem {
+    let (key, message) = match e {
+        ModelError::InvalidValue { what, value, allowed } => {
+            (what.clone(), format!("{value} is not allowed: must be {allowed}"))
+        }
+        ModelError::UnpairedPeriodic { side, .. } => (format!("boundary.{side}"), e.to_string()),
+        ModelError::OutsideWater { what, .. } => (format!("{what}.at"), e.to_string()),
+        ModelError::UnstableDt { .. } => ("scheme.dt".into(), e.to_string()),
+    };
+    Problem { key, message }
+}
+
+/// The engine's checks: builds the model and its stable step.
+fn engine_checks(spec: &ModelSpec, initial: &Initial, scheme: &Scheme, p: &mut Problems) {
+    if let Err(e) = initial.validate() {
+        p.0.push(engine_problem(&e));
+    }
+    match Model::new(spec.clone()) {
+        Ok(model) => {
+            if let Err(e) = max_step(&model, scheme) {
+                p.0.push(engine_problem(&e));
+            }
+        }
+        Err(e) => p.0.push(engine_problem(&e)),
+    }
+}
+
+/// `name`, defaulting to the file stem; must be usable as a folder name.
+fn scenario_name(root: Section, path: &Path, p: &mut Problems) -> Option<String> {
+    let (name, from_file) = match root.string("name", p) {
+        Some(n) => (n.to_string(), false),
+        None if root.has("name") => return None,
+        None => (
+            path.file_stem()
+                .map(|s| s.to_string_lossy().into_owned())
+                .unwrap_or_default(),
+            true,
+        ),
+    };
+    let ok = !name.is_empty()
+        && !name.starts_with('.')
+        && name.len() <= 200
+        && name.chars().all(|c| c.is_ascii_alphanumeric() || "-_.".contains(c));
+    if ok {
+        Some(name)
+    } else {
+        let what = if from_file {
+            format!("the file stem \"{name}\" (used when no name is given)")
+        } else {
+            format!("\"{name}\"")
+        };
+        p.add(
+            "name",
+            format!("{what} is not usable as an output folder name: use 1 to 200 ASCII letters, digits, '-', '_' or '.' (not first)"),
+        );
+        None
+    }
+}
+
+/// A required top-level table.
+fn required_table<'a>(root: Section<'a>, key: &'a str, p: &mut Problems) -> Option<Section<'a>> {
+    if !root.has(key) {
+        p.add(key, format!("missing: the [{key}] table is required"));
+        return None;
+    }
+    root.table(key, p).map(|t| Section::new(key, t))
+}
+
+/// An optional top-level table (an empty one when absent).
+fn optional_table<'a>(root: Section<'a>, key: &'a str, empty: &'a Table, p: &mut Problems) -> Option<Section<'a>> {
+    if root.has(key) {
+        root.table(key, p).map(|t| Section::new(key, t))
+    } else {
+        Some(Section::new(key, empty))
+    }
+}
+
+fn positive(v: Option<f64>, key: &str, p: &mut Problems) -> Option<f64> {
+    check(v, key, |x| x > 0.0, "a number > 0", p)
+}
+
+fn non_negative(v: Option<f64>, key: &str, p: &mut Problems) -> Option<f64> {
+    check(v, key, |x| x >= 0.0, "a number >= 0", p)
+}
+
+/// The tables of an array of tables `[[key]]`, with their labels `key[k]`.
+fn table_array<'a>(root: Section<'a>, key: &str, p: &mut Problems) -> Option<Vec<(String, &'a Table)>> {
+    match root.table.get(key) {
+        None => Some(vec![]),
+        Some(Value::Array(items)) => {
+            let mut out = Vec::new();
+            let mut ok = true;
+            for (k, item) in items.iter().enumerate() {
+                let label = format!("{key}[{k}]");
+                match item {
+                    Value::Table(t) => out.push((label, t)),
+                    other => {
+                        p.add(
+                            label,
+                            format!("expected a table ([[{key}]]), found {}", type_name(other)),
+                        );
+                        ok = false;
+                    }
+                }
+            }
+            ok.then_some(out)
+        }
+        Some(other) => {
+            p.add(
+                key,
+                format!(
+                    "expected an array of tables (write [[{key}]] for each), found {}",
+                    type_name(other)
+                ),
+            );
+            None
+        }
+    }
+}
+
+/// Reports a point outside the grid or on land.
+fn check_point(key: &str, at: (f64, f64), grid: &GridOut, p: &mut Problems) {
+    let g = &grid.grid;
+    match g.cell_at(at.0, at.1) {
+        None => p.add(
+            key,
+            format!(
+                "({}, {}) m is outside the grid (x from {} to {}, y from {} to {})",
+                at.0,
+                at.1,
+                g.x0,
+                g.x0 + g.lx(),
+                g.y0,
+                g.y0 + g.ly()
+            ),
+        ),
+        Some((i, j)) => {
+            if grid.mask.as_ref().is_some_and(|m| !m.is_wet(i, j)) {
+                p.add(
+                    key,
+                    format!("({}, {}) m is on land (cell i = {i}, j = {j} of grid.land)", at.0, at.1),
+                );
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::super::reader::pair;
+    use super::*;
+
+    #[test]
+    fn pair_helper_reports_indices() {
+        let mut p = Problems::default();
+        let v: Value = Value::Array(vec![Value::Float(1.0), Value::Float(f64::INFINITY)]);
+        assert!(pair(&v, "grid.size", &mut p).is_none());
+        assert_eq!(p.0[0].key, "grid.size[1]");
+    }
+}
