@@ -185,10 +185,12 @@ fn read_png(path: &Path, grid: &Grid, range: Option<(f64, f64)>) -> Result<Vec<f
     let grid_aspect = grid.lx() / grid.ly();
     if (image_aspect / grid_aspect - 1.0).abs() > ASPECT_TOLERANCE {
         return Err(format!(
-            "{name} is {w} by {h} pixels (aspect {image_aspect:.4}) but the grid is {} by {} m (aspect {grid_aspect:.4}): \
+            "{name} is {w} by {h} pixels (aspect {}) but the grid is {} by {} m (aspect {}): \
              the aspects must agree within 1%",
+            sig(image_aspect, 4),
             sig(grid.lx(), 4),
-            sig(grid.ly(), 4)
+            sig(grid.ly(), 4),
+            sig(grid_aspect, 4)
         ));
     }
     let mut depth = Vec::with_capacity(grid.cells());
