@@ -7,6 +7,8 @@
 //! zero to round-off. The time dependence of every flow here is a scalar factor on a steady
 //! base field ([`Flow::factor`]); faces on land or walls are zeroed once, at construction.
 
+pub mod file;
+
 use crate::error::{finite, positive, ModelError};
 use crate::grid::{Grid, Mask};
 use crate::ops::boundary::Boundaries;

@@ -53,3 +53,36 @@ pub(super) fn load_mask(path: &Path, grid: &Grid) -> Result<Mask, String> {
     }
     Mask::from_wet(grid, wet).map_err(|_| format!("{} makes every cell land: no water left", path.display()))
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use image::{ImageBuffer, Luma};
+
+    #[test]
+    fn mask_image_is_read_north_up() {
+        // 4 by 3 cells of 10 m: a 4 by 3 image has the grid's aspect.
+        let g = Grid::new(4, 3, 10.0, 10.0, 0.0, 0.0).unwrap();
+        let d = tempfile::tempdir().unwrap();
+        let p = d.path().join("mask.png");
+        // Image rows top (north) to bottom (south); 0 and 100 are dark (land), 128 and 255 light.
+        #[rustfmt::skip]
+        let px: Vec<u8> = vec![
+            0,   128, 255, 255,
+            255, 255, 255, 100,
+            255, 255, 0,   255,
+        ];
+        ImageBuffer::<Luma<u8>, _>::from_raw(4, 3, px)
+            .unwrap()
+            .save(&p)
+            .unwrap();
+        let m = load_mask(&p, &g).unwrap();
+        // Worked by hand: image row r is grid row j = 2 - r, pixel column i is cell column i.
+        let land = [(0, 2), (3, 1), (2, 0)];
+        for j in 0..3 {
+            for i in 0..4 {
+                assert_eq!(m.is_wet(i, j), !land.contains(&(i, j)), "cell ({i}, {j})");
+            }
+        }
+    }
+}

@@ -17,6 +17,7 @@
 //! ```
 
 mod build;
+mod depth;
 mod land;
 mod overrides;
 mod reader;
