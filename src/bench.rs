@@ -40,14 +40,11 @@ pub fn peer_simulation(n: usize, limiter: Limiter) -> Result<(Simulation, PeerSe
     let spec = ModelSpec {
         grid,
         mask: None,
-        depth: 1.0,
+        depth: 1.0.into(),
         kx: k,
         ky: k,
         decay_rate: 0.0,
-        flow: FlowSpec {
-            kind: FlowKind::Vortex { speed: 1.0 },
-            tide: None,
-        },
+        flow: FlowSpec::steady(FlowKind::Vortex { speed: 1.0 }),
         boundaries: Boundaries::periodic(),
         sources: vec![],
     };

@@ -14,7 +14,7 @@
 //! use tinct::{grid::Grid, model::{Model, ModelSpec}, flow::FlowSpec, ops::boundary::Boundaries,
 //!             step::{Scheme, Simulation}};
 //! let grid = Grid::new(64, 64, 1.0, 1.0, 0.0, 0.0).unwrap();
-//! let spec = ModelSpec { grid, mask: None, depth: 2.0, kx: 0.05, ky: 0.05, decay_rate: 0.0,
+//! let spec = ModelSpec { grid, mask: None, depth: 2.0.into(), kx: 0.05, ky: 0.05, decay_rate: 0.0,
 //!     flow: FlowSpec::uniform(0.1, 0.0), boundaries: Boundaries::periodic(), sources: vec![] };
 //! let model = Model::new(spec).unwrap();
 //! let c0 = model.field_from(|x, y| (-((x - 20.0).powi(2) + (y - 32.0).powi(2)) / 18.0).exp());
@@ -31,6 +31,7 @@
 
 pub mod bench;
 pub mod budget;
+pub mod depth;
 pub mod diagnostics;
 pub mod error;
 pub mod field;

@@ -2,8 +2,9 @@
 //! ready for a stepper. Built once from a [`ModelSpec`]; every user value is checked here and
 //! bad ones come back as a [`ModelError`] naming the quantity.
 
-use crate::error::{non_negative, positive, ModelError};
-use crate::flow::{Flow, FlowSpec};
+use crate::depth::{Depth, DepthField};
+use crate::error::{non_negative, ModelError};
+use crate::flow::{FaceDepth, Flow, FlowSpec};
 use crate::grid::{Grid, Mask, HALO};
 use crate::ops::boundary::{Boundaries, SideKind};
 use crate::ops::diffusion;
@@ -16,8 +17,8 @@ pub struct ModelSpec {
     pub grid: Grid,
     /// Water/land mask; `None` for all water.
     pub mask: Option<Mask>,
-    /// Water depth h, m (uniform).
-    pub depth: f64,
+    /// Still-water depth h, m: uniform or per cell.
+    pub depth: Depth,
     /// Diffusivity along x, m2/s.
     pub kx: f64,
     /// Diffusivity along y, m2/s.
@@ -42,8 +43,11 @@ pub struct Model {
     /// 1 for water, 0 for land, padded; the halo is 0 beyond walls, wraps for periodic pairs and
     /// is 1 beyond open or fixed sides.
     pub wet: Vec<u8>,
-    /// Water depth, m.
+    /// Water depth, m: the uniform depth, or the mean still-water depth of a depth field.
     pub depth: f64,
+    /// Per-cell and per-face still-water depths, when the depth varies in space or with a
+    /// tidal level (the kernels then carry `h` explicitly; `None`: uniform and steady).
+    pub depth_field: Option<DepthField>,
     /// Diffusivity along x, m2/s.
     pub kx: f64,
     /// Diffusivity along y, m2/s.
@@ -56,6 +60,7 @@ pub struct Model {
     pub boundaries: Boundaries,
     /// Resolved sources.
     pub sources: Vec<Source>,
+    diffusion_rate: f64,
 }
 
 impl Model {
@@ -75,12 +80,25 @@ impl Model {
             }
             None => Mask::all_water(&grid),
         };
-        positive("grid.depth", spec.depth)?;
         non_negative("tracer.diffusivity[0]", spec.kx)?;
         non_negative("tracer.diffusivity[1]", spec.ky)?;
         non_negative("tracer.decay_rate", spec.decay_rate)?;
         spec.boundaries.validate()?;
-        let flow = Flow::new(spec.flow, &grid, &mask, &spec.boundaries)?;
+        spec.flow.validate()?;
+        let amplitude = spec.flow.amplitude();
+        let (depth, depth_field) = match spec.depth.uniform().filter(|_| amplitude == 0.0) {
+            Some(h) => (crate::error::positive("grid.depth", h)?, None),
+            None => {
+                let f = DepthField::new(&spec.depth, &grid, &mask, &spec.boundaries, -amplitude)?;
+                let mean = f.volume(&grid, &mask) / (mask.wet_count() as f64 * grid.cell_area());
+                (mean, Some(f))
+            }
+        };
+        let faces = match &depth_field {
+            Some(f) => FaceDepth::Field(f),
+            None => FaceDepth::Uniform(depth),
+        };
+        let flow = Flow::with_depth(spec.flow, &grid, &mask, &spec.boundaries, faces)?;
         let sources = spec
             .sources
             .iter()
@@ -88,17 +106,23 @@ impl Model {
             .map(|(k, s)| Source::new(s, &format!("source[{k}]"), &grid, &mask))
             .collect::<Result<Vec<_>, _>>()?;
         let wet = padded_wet(&grid, &mask, &spec.boundaries);
+        let diffusion_rate = match &depth_field {
+            None => diffusion::rate(spec.kx, spec.ky, grid.dx, grid.dy),
+            Some(f) => depth_diffusion_rate(&grid, &mask, f, (spec.kx, spec.ky), -amplitude),
+        };
         Ok(Self {
             grid,
             mask,
             wet,
-            depth: spec.depth,
+            depth,
+            depth_field,
             kx: spec.kx,
             ky: spec.ky,
             decay_rate: spec.decay_rate,
             flow,
             boundaries: spec.boundaries,
             sources,
+            diffusion_rate,
         })
     }
 
@@ -107,19 +131,83 @@ impl Model {
         self.mask.has_land()
     }
 
-    /// Volume of one cell, h dA, m3.
+    /// Volume of one cell, h dA, m3 (with a depth field: the shallowest cell at low water).
     pub fn cell_volume(&self) -> f64 {
-        self.depth * self.grid.cell_area()
+        match &self.depth_field {
+            None => self.depth * self.grid.cell_area(),
+            Some(f) => (f.range.0 - self.flow.spec().amplitude()) * self.grid.cell_area(),
+        }
     }
 
-    /// Mass in a padded field: sum(c) h dA, compensated.
-    pub fn mass(&self, c: &[f64]) -> f64 {
-        crate::field::interior_sum(&self.grid, c) * self.cell_volume()
+    /// What a sum of transported values is multiplied by to give mass: `h dA` for a uniform
+    /// depth (the kernels sum `c`), `dA` with a depth field (they sum `c h`).
+    pub fn mass_factor(&self) -> f64 {
+        match &self.depth_field {
+            None => self.depth * self.grid.cell_area(),
+            Some(_) => self.grid.cell_area(),
+        }
     }
 
-    /// Diffusion rate Kx/dx^2 + Ky/dy^2, 1/s.
+    /// What a side flux sum (per unit face length) is multiplied by besides length and time:
+    /// the depth for a uniform depth (fluxes are per unit depth), 1 with a depth field (they
+    /// are transports already).
+    pub fn flux_depth(&self) -> f64 {
+        match &self.depth_field {
+            None => self.depth,
+            Some(_) => 1.0,
+        }
+    }
+
+    /// Mass in a padded field at time `t`: sum(c h) dA, compensated.
+    pub fn mass(&self, c: &[f64], t: f64) -> f64 {
+        match &self.depth_field {
+            None => crate::field::interior_sum(&self.grid, c) * self.cell_volume(),
+            Some(f) => {
+                let eta = self.flow.level(t);
+                let g = &self.grid;
+                let mut acc = crate::field::Neumaier::default();
+                for j in 0..g.ny {
+                    let q = g.idx(0, j as isize);
+                    let row: f64 = c[q..q + g.nx]
+                        .iter()
+                        .zip(&f.cell[q..q + g.nx])
+                        .map(|(c, h)| c * (h + eta))
+                        .fold(crate::field::Neumaier::default(), |mut a, x| {
+                            a.add(x);
+                            a
+                        })
+                        .value();
+                    acc.add(row);
+                }
+                acc.value() * g.cell_area()
+            }
+        }
+    }
+
+    /// Adds `mass` released by `source` at time `t` to the padded field `c`.
+    pub fn deposit(&self, source: &Source, c: &mut [f64], mass: f64, t: f64) {
+        match &self.depth_field {
+            None => source.deposit(c, mass, 1.0 / self.cell_volume()),
+            Some(f) => {
+                let (eta, da) = (self.flow.level(t), self.grid.cell_area());
+                source.deposit_with(c, mass, |p| 1.0 / ((f.cell[p] + eta) * da));
+            }
+        }
+    }
+
+    /// Depth of cell (i, j) at time `t`, m.
+    pub fn depth_at(&self, i: usize, j: usize, t: f64) -> f64 {
+        match &self.depth_field {
+            None => self.depth,
+            Some(f) => f.cell[self.grid.idx(i as isize, j as isize)] + self.flow.level(t),
+        }
+    }
+
+    /// Diffusion rate Kx/dx^2 + Ky/dy^2, 1/s; with a depth field the largest over cells of
+    /// `(Kx (h_w + h_e)/(2 dx^2) + Ky (h_s + h_n)/(2 dy^2)) / h` at low water, so that the
+    /// explicit limit `rate dt <= 1/2` keeps every cell's own coefficient positive.
     pub fn diffusion_rate(&self) -> f64 {
-        diffusion::rate(self.kx, self.ky, self.grid.dx, self.grid.dy)
+        self.diffusion_rate
     }
 
     /// A zeroed padded field.
@@ -167,4 +255,23 @@ fn padded_wet(grid: &Grid, mask: &Mask, b: &Boundaries) -> Vec<u8> {
         }
     }
     wet
+}
+
+/// The diffusion rate of a depth field: face depths over the cell depth, at the level `eta`.
+fn depth_diffusion_rate(grid: &Grid, mask: &Mask, f: &DepthField, (kx, ky): (f64, f64), eta: f64) -> f64 {
+    let s = grid.stride();
+    let mut worst = 0.0f64;
+    for j in 0..grid.ny {
+        for i in 0..grid.nx {
+            if !mask.is_wet(i, j) {
+                continue;
+            }
+            let p = grid.idx(i as isize, j as isize);
+            let h = f.cell[p] + eta;
+            let rx = kx * (f.fx[p] + f.fx[p + 1] + 2.0 * eta) / (2.0 * grid.dx * grid.dx);
+            let ry = ky * (f.fy[p] + f.fy[p + s] + 2.0 * eta) / (2.0 * grid.dy * grid.dy);
+            worst = worst.max((rx + ry) / h);
+        }
+    }
+    worst
 }

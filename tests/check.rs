@@ -38,11 +38,15 @@ fn small_model(kx: f64) -> Model {
     Model::new(ModelSpec {
         grid: g,
         mask: Some(mask),
-        depth: 1.0,
+        depth: 1.0.into(),
         kx,
         ky: 0.1,
         decay_rate: 0.0,
-        flow: FlowSpec::uniform(1.0, 0.01),
+        // Not projected: the face velocities below are worked by hand from the raw field.
+        flow: FlowSpec {
+            project: false,
+            ..FlowSpec::uniform(1.0, 0.01)
+        },
         boundaries: Boundaries {
             west: SideKind::Open { value: 0.0 },
             east: SideKind::Open { value: 0.0 },
@@ -219,7 +223,7 @@ fn upwind_numerical_diffusivity_map_matches_the_modified_equation_and_the_measur
     let model = Model::new(ModelSpec {
         grid: g,
         mask: None,
-        depth: 1.0,
+        depth: 1.0.into(),
         kx: 0.0,
         ky: 0.0,
         decay_rate: 0.0,

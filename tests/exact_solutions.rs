@@ -61,7 +61,7 @@ fn puff_run(dx: f64, limiter: Limiter) -> (f64, f64) {
     let mut sp = spec(grid, FlowKind::Uniform { u: p.u, v: p.v }, Boundaries::periodic());
     sp.kx = p.kx;
     sp.ky = p.ky;
-    sp.depth = p.h;
+    sp.depth = p.h.into();
     sp.decay_rate = p.lambda;
     // The field at t0 is the exact one; the run's clock starts at zero, so evaluate at t0 + t.
     let mut s = sim(sp, scheme(limiter, 3), |x, y| p.at(x, y, t0));

@@ -139,7 +139,7 @@ fn puff_error(scheme: Scheme) -> (f64, Vec<f64>, f64) {
     let mut sp = spec(grid, FlowKind::Uniform { u, v }, Boundaries::periodic());
     sp.kx = kx;
     sp.ky = ky;
-    sp.depth = 2.0;
+    sp.depth = 2.0.into();
     sp.decay_rate = lambda;
     let mut s = sim(sp, scheme, move |x, y| exact(x, y, t0));
     let mut worst = 0.0f64;

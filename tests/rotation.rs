@@ -102,7 +102,7 @@ fn closed_basin_with_island_source_and_decay_closes_the_budget_every_step() {
     sp.mask = Some(island(&grid, (150.0, 190.0), (120.0, 170.0)));
     sp.kx = 0.5;
     sp.ky = 0.2;
-    sp.depth = 4.0;
+    sp.depth = 4.0.into();
     sp.decay_rate = std::f64::consts::LN_10 / 7200.0;
     sp.sources = vec![
         SourceSpec {

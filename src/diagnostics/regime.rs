@@ -570,7 +570,7 @@ mod tests {
         let spec = |u: f64, k: f64| ModelSpec {
             grid: g,
             mask: Some(Mask::all_water(&g)),
-            depth: 1.0,
+            depth: 1.0.into(),
             kx: k,
             ky: k,
             decay_rate: 0.0,

@@ -4,18 +4,30 @@
 //! of the last column at `idx(nx, j)`), `v` on y-faces (the south face of cell (i, j) at
 //! `idx(i, j)`). Analytic flows are evaluated through a stream function at cell corners,
 //! `u = dpsi/dy`, `v = -dpsi/dx` as differences, so the discrete divergence of every cell is
-//! zero to round-off. The time dependence of every flow here is a scalar factor on a steady
-//! base field ([`Flow::factor`]); faces on land or walls are zeroed once, at construction.
+//! zero to round-off. Flow through openings comes from a potential-flow solve
+//! ([`potential`]), and a prescribed or file flow that land or walls make divergent is
+//! projected onto a divergence-free one around the land (`project`, default on).
+//!
+//! With a uniform depth the face arrays hold velocities (m/s); with a depth field or a tidal
+//! level they hold transports `h_f u_f` (m2/s, [`Flow::is_transport`]). The time dependence is a
+//! scalar factor on a steady base field ([`Flow::factor`]), plus, with a tidal amplitude, the
+//! filling field times the rate of rise of the level, or the linear interpolation between the
+//! records of a file flow ([`Flow::faces_at`]).
 
+mod assemble;
 pub mod file;
+mod openings;
+pub(crate) mod potential;
 
-use crate::error::{finite, positive, ModelError};
-use crate::grid::{Grid, Mask};
-use crate::ops::boundary::Boundaries;
+pub use assemble::FaceDepth;
+pub use openings::Opening;
+
+use crate::error::{finite, invalid, positive, ModelError};
+use crate::grid::Grid;
 use std::f64::consts::PI;
 
-/// The analytic flow kinds.
-#[derive(Debug, Clone, Copy, PartialEq)]
+/// The flow kinds.
+#[derive(Debug, Clone, PartialEq)]
 pub enum FlowKind {
     /// Constant velocity (u, v), m/s.
     Uniform {
@@ -46,167 +58,153 @@ pub enum FlowKind {
         /// U, m/s.
         speed: f64,
     },
+    /// Potential flow through openings in the sides (`[[flow.opening]]`).
+    Openings(Vec<Opening>),
+    /// Cell-centre velocities read from a CSV or NetCDF file, linear in time between records.
+    File(FileFlow),
 }
 
-/// An optional tidal factor `cos(2 pi t / period + phase)` on the base field.
+/// A flow file and what was read from it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FileFlow {
+    /// The file, as resolved against the scenario file.
+    pub path: std::path::PathBuf,
+    /// Its records.
+    pub data: std::sync::Arc<file::FlowFile>,
+}
+
+/// An optional tide: the factor `cos(2 pi t / period + phase)` on the base field and, with an
+/// amplitude, the level `eta = amplitude sin(2 pi t / period + phase)`.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Tide {
     /// Tidal period, s.
     pub period: f64,
     /// Phase, radians.
     pub phase: f64,
+    /// Amplitude of the level, m (0: no rise and fall).
+    pub amplitude: f64,
 }
 
-/// What the user asks for: a kind and an optional tide.
-#[derive(Debug, Clone, Copy, PartialEq)]
+/// What the user asks for: a kind, an optional tide, and whether a divergent field is
+/// projected.
+#[derive(Debug, Clone, PartialEq)]
 pub struct FlowSpec {
     /// The base field.
     pub kind: FlowKind,
     /// Tidal modulation.
     pub tide: Option<Tide>,
+    /// Remove a discrete divergence above [`DIVERGENCE_TOLERANCE`] of the largest face flux by
+    /// a projection around land (default true).
+    pub project: bool,
 }
+
+/// Relative divergence (worst cell over largest face discharge) above which a prescribed flow
+/// is projected, or reported when projection is off.
+pub const DIVERGENCE_TOLERANCE: f64 = 1e-6;
 
 impl FlowSpec {
     /// A steady uniform flow.
     pub fn uniform(u: f64, v: f64) -> Self {
+        Self::steady(FlowKind::Uniform { u, v })
+    }
+
+    /// A steady flow of `kind`, projected when divergent.
+    pub fn steady(kind: FlowKind) -> Self {
         Self {
-            kind: FlowKind::Uniform { u, v },
+            kind,
             tide: None,
+            project: true,
         }
     }
 
     /// Checks every number.
     pub fn validate(&self) -> Result<(), ModelError> {
-        match self.kind {
+        match &self.kind {
             FlowKind::Uniform { u, v } => {
-                finite("flow.velocity[0]", u)?;
-                finite("flow.velocity[1]", v)?;
+                finite("flow.velocity[0]", *u)?;
+                finite("flow.velocity[1]", *v)?;
             }
             FlowKind::Rotation { centre, period } => {
                 finite("flow.centre[0]", centre.0)?;
                 finite("flow.centre[1]", centre.1)?;
-                positive("flow.period", period)?;
+                positive("flow.period", *period)?;
             }
             FlowKind::Swirl { period, speed } => {
-                positive("flow.period", period)?;
-                finite("flow.speed", speed)?;
+                positive("flow.period", *period)?;
+                finite("flow.speed", *speed)?;
             }
             FlowKind::Vortex { speed } => {
-                finite("flow.speed", speed)?;
+                finite("flow.speed", *speed)?;
             }
+            FlowKind::Openings(_) | FlowKind::File(_) => {}
         }
         if let Some(t) = self.tide {
             positive("flow.tide.period", t.period)?;
             finite("flow.tide.phase", t.phase)?;
+            if !(t.amplitude.is_finite() && t.amplitude >= 0.0) {
+                return Err(invalid("flow.tide.amplitude", t.amplitude, "a level amplitude >= 0 m"));
+            }
+            if t.amplitude > 0.0 && !matches!(self.kind, FlowKind::Openings(_)) {
+                return Err(invalid(
+                    "flow.tide.amplitude",
+                    t.amplitude,
+                    "0 unless flow.kind = \"openings\" (the level rises and falls through the openings)",
+                ));
+            }
         }
         Ok(())
     }
+
+    /// Tidal amplitude, m (0 without one).
+    pub fn amplitude(&self) -> f64 {
+        self.tide.map_or(0.0, |t| t.amplitude)
+    }
 }
 
-/// Face velocities of a flow on a grid, with its time factor.
+/// Facts about a flow for `check` and `summary.json`.
+#[derive(Debug, Clone, Default, PartialEq, serde::Serialize)]
+pub struct FlowReport {
+    /// Largest cell's net discharge over the largest face discharge before any projection
+    /// (0 for divergence-free fields).
+    pub divergence: f64,
+    /// Whether the field was projected onto a divergence-free one.
+    pub projected: bool,
+    /// Largest cell imbalance of the final field relative to the total discharge (openings) or
+    /// the largest face discharge (other kinds).
+    pub imbalance: f64,
+    /// Smallest and largest face speed of the base field at full strength, m/s.
+    pub speed: (f64, f64),
+    /// Sum of the openings' inflows (through-flow), m3/s.
+    pub discharge: f64,
+    /// Water volume at mean level, m3.
+    pub volume: f64,
+    /// Wet area, m2.
+    pub area: f64,
+    /// V/Q, s (openings with through-flow).
+    pub residence: Option<f64>,
+    /// Tidal prism 2 amplitude A, m3 (with a tidal amplitude).
+    pub prism: Option<f64>,
+}
+
+/// Face arrays of a flow on a grid, with its time dependence.
 #[derive(Debug, Clone)]
 pub struct Flow {
-    /// Base x-velocity on west faces, padded layout, m/s.
+    /// Base x-velocity (or transport) on west faces, padded layout.
     pub u: Vec<f64>,
-    /// Base y-velocity on south faces, padded layout, m/s.
+    /// Base y-velocity (or transport) on south faces, padded layout.
     pub v: Vec<f64>,
+    /// Transport per unit rate of rise of the level (m2/s per m/s), with a tidal amplitude.
+    fill: Option<(Vec<f64>, Vec<f64>)>,
+    /// Time records of a file flow that changes in time: (time, u, v); empty otherwise.
+    records: Vec<(f64, Vec<f64>, Vec<f64>)>,
+    transport: bool,
     spec: FlowSpec,
     max_divergence: f64,
     courant_rate: f64,
+    report: FlowReport,
 }
 
 impl Flow {
-    /// Evaluates `spec` on the grid; faces that touch land, and faces on walls, get zero normal
-    /// velocity. For a periodic pair the last face copies the first so the wrap is exact.
-    pub fn new(spec: FlowSpec, grid: &Grid, mask: &Mask, bnd: &Boundaries) -> Result<Self, ModelError> {
-        spec.validate()?;
-        let n = grid.padded_len();
-        let (nx, ny) = (grid.nx, grid.ny);
-        let mut u = crate::field::huge_filled(n, 0.0);
-        let mut v = crate::field::huge_filled(n, 0.0);
-        match spec.kind {
-            FlowKind::Uniform { u: u0, v: v0 } => {
-                for j in 0..ny as isize {
-                    for i in 0..=nx as isize {
-                        u[grid.idx(i, j)] = u0;
-                    }
-                }
-                for j in 0..=ny as isize {
-                    for i in 0..nx as isize {
-                        v[grid.idx(i, j)] = v0;
-                    }
-                }
-            }
-            FlowKind::Rotation { centre, period } => {
-                let w = 2.0 * PI / period;
-                let psi = |i: usize, j: usize| {
-                    let x = grid.x0 + i as f64 * grid.dx - centre.0;
-                    let y = grid.y0 + j as f64 * grid.dy - centre.1;
-                    -0.5 * w * (x * x + y * y)
-                };
-                from_stream_function(grid, &mut u, &mut v, psi);
-            }
-            FlowKind::Swirl { speed, .. } | FlowKind::Vortex { speed } => {
-                // sin(pi k / n) evaluated on min(k, n - k) so both ends are exactly zero.
-                let s2 = |k: usize, n: usize| {
-                    let m = k.min(n - k) as f64 / n as f64;
-                    let s = (PI * m).sin();
-                    s * s
-                };
-                let sx: Vec<f64> = (0..=nx).map(|i| s2(i, nx)).collect();
-                let sy: Vec<f64> = (0..=ny).map(|j| s2(j, ny)).collect();
-                let a = speed * grid.ly() / PI;
-                from_stream_function(grid, &mut u, &mut v, |i, j| a * sx[i] * sy[j]);
-            }
-        }
-        // Periodic pairs: the east face is the west face.
-        if bnd.periodic_x() {
-            for j in 0..ny as isize {
-                u[grid.idx(nx as isize, j)] = u[grid.idx(0, j)];
-            }
-        }
-        if bnd.periodic_y() {
-            for i in 0..nx as isize {
-                v[grid.idx(i, ny as isize)] = v[grid.idx(i, 0)];
-            }
-        }
-        // Close faces on walls and land.
-        let wet = |i: isize, j: isize, side_open: bool| -> bool {
-            if i < 0 || j < 0 || i >= nx as isize || j >= ny as isize {
-                side_open
-            } else {
-                mask.is_wet(i as usize, j as usize)
-            }
-        };
-        for j in 0..ny as isize {
-            for i in 0..=nx as isize {
-                let side = if i == 0 { bnd.west } else { bnd.east };
-                let open = wet(i - 1, j, side.passes_flow()) && wet(i, j, side.passes_flow());
-                if !open {
-                    u[grid.idx(i, j)] = 0.0;
-                }
-            }
-        }
-        for j in 0..=ny as isize {
-            for i in 0..nx as isize {
-                let side = if j == 0 { bnd.south } else { bnd.north };
-                let open = wet(i, j - 1, side.passes_flow()) && wet(i, j, side.passes_flow());
-                if !open {
-                    v[grid.idx(i, j)] = 0.0;
-                }
-            }
-        }
-        let max_divergence = max_divergence(grid, &u, &v);
-        let courant_rate = crate::ops::convection::max_courant_rate(grid, &u, &v);
-        Ok(Self {
-            u,
-            v,
-            spec,
-            max_divergence,
-            courant_rate,
-        })
-    }
-
     /// The flow as specified.
     pub fn spec(&self) -> &FlowSpec {
         &self.spec
@@ -231,14 +229,74 @@ impl Flow {
         1.0
     }
 
-    /// Largest per-cell `|div u|` of the base field, 1/s (round-off for stream-function flows;
-    /// non-zero where walls or land cut a through-flow).
+    /// The tidal level `eta(t) = amplitude sin(2 pi t/period + phase)`, m (0 without one).
+    #[inline]
+    pub fn level(&self, t: f64) -> f64 {
+        match self.spec.tide {
+            Some(tide) if tide.amplitude > 0.0 => tide.amplitude * (2.0 * PI * t / tide.period + tide.phase).sin(),
+            _ => 0.0,
+        }
+    }
+
+    /// Whether the face arrays hold transports `h_f u_f` (depth field or tidal level) rather
+    /// than velocities.
+    pub fn is_transport(&self) -> bool {
+        self.transport
+    }
+
+    /// Whether the face values change other than by a scalar factor (tidal filling, file
+    /// records), so that a stepper must form them with [`Flow::faces_at`].
+    pub fn has_fill(&self) -> bool {
+        self.fill.is_some() || !self.records.is_empty()
+    }
+
+    /// Face values at time `t` with the level rising at `rate` m/s: the base (or the records
+    /// interpolated linearly in time, held beyond the ends) times the factor, plus `rate` times
+    /// the filling field.
+    pub fn faces_at(&self, t: f64, rate: f64, u: &mut [f64], v: &mut [f64]) {
+        let f = self.factor(t);
+        if !self.records.is_empty() {
+            let r = &self.records;
+            let k = r.partition_point(|x| x.0 <= t).clamp(1, r.len() - 1);
+            let (t0, t1) = (r[k - 1].0, r[k].0);
+            let w = ((t - t0) / (t1 - t0)).clamp(0.0, 1.0);
+            let w = if w.is_nan() { 0.0 } else { w };
+            for (o, (a, b)) in u.iter_mut().zip(r[k - 1].1.iter().zip(&r[k].1)) {
+                *o = f * ((1.0 - w) * a + w * b);
+            }
+            for (o, (a, b)) in v.iter_mut().zip(r[k - 1].2.iter().zip(&r[k].2)) {
+                *o = f * ((1.0 - w) * a + w * b);
+            }
+            return;
+        }
+        match &self.fill {
+            Some((fu, fv)) => {
+                for ((o, b), q) in u.iter_mut().zip(&self.u).zip(fu) {
+                    *o = f * b + rate * q;
+                }
+                for ((o, b), q) in v.iter_mut().zip(&self.v).zip(fv) {
+                    *o = f * b + rate * q;
+                }
+            }
+            None => {
+                for (o, b) in u.iter_mut().zip(&self.u) {
+                    *o = f * b;
+                }
+                for (o, b) in v.iter_mut().zip(&self.v) {
+                    *o = f * b;
+                }
+            }
+        }
+    }
+
+    /// Largest per-cell `|div u|` of the base field, 1/s (round-off for stream-function and
+    /// projected flows; non-zero where walls or land cut an unprojected through-flow).
     pub fn max_divergence(&self) -> f64 {
         self.max_divergence
     }
 
     /// Largest per-cell `max|u|/dx + max|v|/dy` of the base field, 1/s: Courant number = this
-    /// times dt times |factor|.
+    /// times dt times |factor| (with a tidal level, a bound over the tide at low water).
     pub fn courant_rate(&self) -> f64 {
         self.courant_rate
     }
@@ -248,9 +306,14 @@ impl Flow {
         self.courant_rate == 0.0
     }
 
-    /// Whether the base field is steady (no swirl reversal, no tide).
+    /// Whether the base field is steady (no swirl reversal, no tide, no file records).
     pub fn is_steady(&self) -> bool {
-        self.spec.tide.is_none() && !matches!(self.spec.kind, FlowKind::Swirl { .. })
+        self.spec.tide.is_none() && !matches!(self.spec.kind, FlowKind::Swirl { .. }) && self.records.is_empty()
+    }
+
+    /// Divergence, discharge, speed, volume, residence and prism figures.
+    pub fn report(&self) -> &FlowReport {
+        &self.report
     }
 }
 
@@ -292,6 +355,8 @@ pub fn max_divergence(grid: &Grid, u: &[f64], v: &[f64]) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::grid::Mask;
+    use crate::ops::boundary::Boundaries;
     use crate::ops::boundary::SideKind;
 
     fn grid() -> Grid {
@@ -313,7 +378,7 @@ mod tests {
                 speed: 1.0,
             },
         ] {
-            let f = Flow::new(FlowSpec { kind, tide: None }, &g, &m, &b).unwrap();
+            let f = Flow::new(FlowSpec::steady(kind.clone()), &g, &m, &b).unwrap();
             assert!(
                 f.max_divergence() < 1e-14 * f.courant_rate().max(1.0),
                 "{kind:?}: {}",
@@ -336,6 +401,7 @@ mod tests {
                     period,
                 },
                 tide: None,
+                project: true,
             },
             &g,
             &m,
@@ -355,7 +421,11 @@ mod tests {
         let m = Mask::all_water(&g)
             .with_land(&g, |x, y| (4.0..6.0).contains(&x) && (4.0..6.0).contains(&y))
             .unwrap();
-        let f = Flow::new(FlowSpec::uniform(1.0, 0.5), &g, &m, &Boundaries::walls()).unwrap();
+        let unprojected = FlowSpec {
+            project: false,
+            ..FlowSpec::uniform(1.0, 0.5)
+        };
+        let f = Flow::new(unprojected, &g, &m, &Boundaries::walls()).unwrap();
         for j in 0..10 {
             assert_eq!(f.u[g.idx(0, j)], 0.0);
             assert_eq!(f.u[g.idx(10, j)], 0.0);
@@ -380,6 +450,7 @@ mod tests {
                     speed: 1.0,
                 },
                 tide: None,
+                project: true,
             },
             &g,
             &m,
@@ -394,7 +465,9 @@ mod tests {
             tide: Some(Tide {
                 period: 100.0,
                 phase: PI,
+                amplitude: 0.0,
             }),
+            project: true,
         };
         let f = Flow::new(t, &g, &m, &b).unwrap();
         assert!((f.factor(0.0) + 1.0).abs() < 1e-15);
@@ -407,13 +480,10 @@ mod tests {
         let g = grid();
         let m = Mask::all_water(&g);
         let b = Boundaries::walls();
-        let bad = FlowSpec {
-            kind: FlowKind::Rotation {
-                centre: (0.0, 0.0),
-                period: 0.0,
-            },
-            tide: None,
-        };
+        let bad = FlowSpec::steady(FlowKind::Rotation {
+            centre: (0.0, 0.0),
+            period: 0.0,
+        });
         assert!(Flow::new(bad, &g, &m, &b)
             .unwrap_err()
             .to_string()

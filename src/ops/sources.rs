@@ -143,6 +143,13 @@ impl Source {
         }
     }
 
+    /// Adds `mass` to the padded field `c` with a per-cell `1/(h dA)` (depth fields).
+    pub fn deposit_with(&self, c: &mut [f64], mass: f64, inv_volume: impl Fn(usize) -> f64) {
+        for &(p, w) in &self.cells {
+            c[p] += mass * w * inv_volume(p);
+        }
+    }
+
     /// Padded indices and weights of the cells fed.
     pub fn cells(&self) -> &[(usize, f64)] {
         &self.cells

@@ -53,6 +53,9 @@ pub struct Scenario {
     pub tracer: TracerInfo,
     /// The land image as resolved against the scenario file (absolute), if any.
     pub land: Option<PathBuf>,
+    /// The depth file as resolved against the scenario file (absolute) and its grey-level
+    /// `depth_range`, when `grid.depth` names one.
+    pub depth_file: Option<(PathBuf, Option<(f64, f64)>)>,
 }
 
 /// `[run]`: end time and output cadence.
@@ -228,6 +231,7 @@ impl PartialEq for Scenario {
             && self.output == o.output
             && self.tracer == o.tracer
             && self.land == o.land
+            && self.depth_file == o.depth_file
     }
 }
 

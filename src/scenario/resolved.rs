@@ -47,7 +47,16 @@ pub(super) fn write(s: &Scenario) -> String {
     line(format!("dx = {}", num(g.dx)));
     line(format!("dy = {}", num(g.dy)));
     line(format!("origin = {}", pair((g.x0, g.y0))));
-    line(format!("depth = {}", num(m.depth)));
+    match (&s.depth_file, m.depth.uniform()) {
+        (Some((file, range)), _) => {
+            line(format!("depth = {}", text(&file.to_string_lossy())));
+            if let Some(r) = range {
+                line(format!("depth_range = {}", pair(*r)));
+            }
+        }
+        (None, Some(h)) => line(format!("depth = {}", num(h))),
+        (None, None) => line("# depth: a field given in code, not written here".into()),
+    }
     if let Some(land) = &s.land {
         line(format!("land = {}", text(&land.to_string_lossy())));
     }
@@ -65,6 +74,7 @@ pub(super) fn write(s: &Scenario) -> String {
     }
     line(String::new());
     line("[flow]".into());
+    let mut openings = None;
     match m.flow.kind {
         FlowKind::Uniform { u, v } => {
             line("kind = \"uniform\"".into());
@@ -84,13 +94,35 @@ pub(super) fn write(s: &Scenario) -> String {
             line("kind = \"vortex\"".into());
             line(format!("speed = {}", num(speed)));
         }
+        FlowKind::Openings(ref list) => {
+            line("kind = \"openings\"".into());
+            openings = Some(list);
+        }
+        FlowKind::File(ref f) => {
+            line("kind = \"file\"".into());
+            line(format!("path = {}", text(&f.path.to_string_lossy())));
+        }
     }
+    line(format!("project = {}", m.flow.project));
     if let Some(t) = m.flow.tide {
         line(format!(
-            "tide = {{ period = {}, phase = {} }}",
+            "tide = {{ period = {}, phase = {}, amplitude = {} }}",
             num(t.period),
-            num(t.phase)
+            num(t.phase),
+            num(t.amplitude)
         ));
+    }
+    for o in openings.into_iter().flatten() {
+        line(String::new());
+        line("[[flow.opening]]".into());
+        line(format!("name = {}", text(&o.name)));
+        line(format!("side = \"{}\"", o.side.name()));
+        line(format!("from = {}", num(o.from)));
+        line(format!("to = {}", num(o.to)));
+        line(format!("discharge = {}", num(o.discharge)));
+        if let Some(s) = o.share {
+            line(format!("share = {}", num(s)));
+        }
     }
     line(String::new());
     line("[boundary]".into());

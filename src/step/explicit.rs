@@ -2,7 +2,7 @@
 //! fused sweep of [`super::kernel`]; the stage fluxes through the sides enter the budget with
 //! the scheme's weights.
 
-use super::kernel::{self, Block, StageParams};
+use super::kernel::{self, Block, Faces, StageParams};
 use super::{Scheme, State};
 use crate::model::Model;
 use crate::ops::boundary::{fill_ghosts, Side};
@@ -29,8 +29,8 @@ pub(crate) fn book_sides(m: &Model, sums: &kernel::BlockSums, w: f64, dt: f64, i
             _ => m.grid.dx,
         };
         let k = side.index();
-        into[k][0] += w * sums.side_in[k] * len * m.depth * dt;
-        into[k][1] += w * sums.side_out[k] * len * m.depth * dt;
+        into[k][0] += w * sums.side_in[k] * len * m.flux_depth() * dt;
+        into[k][1] += w * sums.side_out[k] * len * m.flux_depth() * dt;
     }
 }
 
@@ -46,14 +46,15 @@ pub(crate) fn sweep(
     blocks: &mut [Block],
     rows_per_block: usize,
     p: StageParams,
+    faces: Faces,
 ) -> kernel::BlockSums {
     let masked = m.has_land();
     let pieced = kernel::pieced(m.grid.nx);
     crate::with_limiter!(limiter, K => {
         if masked {
-            kernel::stage::<K, true>(m, src, base, out, blocks, rows_per_block, p, pieced)
+            kernel::stage::<K, true>(m, src, base, out, blocks, rows_per_block, p, pieced, faces)
         } else {
-            kernel::stage::<K, false>(m, src, base, out, blocks, rows_per_block, p, pieced)
+            kernel::stage::<K, false>(m, src, base, out, blocks, rows_per_block, p, pieced, faces)
         }
     });
     let mut total = kernel::BlockSums::default();
@@ -87,6 +88,8 @@ pub(crate) struct Explicit {
     b: Vec<f64>,
     blocks: Vec<Block>,
     rows_per_block: usize,
+    /// Face values of a stage when they are not a factor times the base (tidal filling).
+    faces: Option<(Vec<f64>, Vec<f64>)>,
 }
 
 impl Explicit {
@@ -98,6 +101,10 @@ impl Explicit {
             b: crate::field::huge_filled(model.grid.padded_len(), f64::NAN),
             blocks,
             rows_per_block,
+            faces: model
+                .flow
+                .has_fill()
+                .then(|| (vec![0.0; model.grid.padded_len()], vec![0.0; model.grid.padded_len()])),
         }
     }
 
@@ -118,19 +125,45 @@ impl Explicit {
         let (stages, weights) = tableau(scheme.stages);
         let nst = stages.len();
         let mut out = StepOutcome::default();
+        // The level's change over the step is carried by a constant filling rate, so every
+        // stage's volume is the one continuity gives (exactly h0 + eta1 after the last stage).
+        let (eta0, eta1) = (m.flow.level(state.t), m.flow.level(state.t + dt));
+        let rate = (eta1 - eta0) / dt;
+        let mut eta_src = eta0;
         for (k, &(alpha, beta, toff)) in stages.iter().enumerate() {
-            let factor = m.flow.factor(state.t + toff * dt);
-            out.max_factor = out.max_factor.max(factor.abs());
+            let ts = state.t + toff * dt;
+            let (factor, faces) = match self.faces.as_mut() {
+                Some((u, v)) => {
+                    m.flow.faces_at(ts, rate, u, v);
+                    out.max_factor = 1.0;
+                    (1.0, Faces { u, v })
+                }
+                None => {
+                    let f = m.flow.factor(ts);
+                    out.max_factor = out.max_factor.max(f.abs());
+                    (f, Faces::of(m))
+                }
+            };
+            let final_stage = k + 1 == nst;
+            let eta_out = if final_stage {
+                eta1
+            } else {
+                alpha * eta0 + beta * (eta_src + (eta1 - eta0))
+            };
             let p = StageParams {
                 dt,
                 factor,
                 alpha,
                 beta,
-                final_stage: k + 1 == nst,
+                final_stage,
                 decay,
                 limit,
                 diffusion,
+                eta_src,
+                eta_base: eta0,
+                eta_out,
             };
+            eta_src = eta_out;
             // Stage buffers: c -> a -> b -> a (3 stages), c -> a -> b (2), c -> a (1).
             match k {
                 0 => fill_ghosts(&m.grid, &m.boundaries, &mut state.c),
@@ -151,6 +184,7 @@ impl Explicit {
                 &mut self.blocks,
                 self.rows_per_block,
                 p,
+                faces,
             );
             book_sides(m, &sums, weights[k], dt, &mut out.side_mass);
             if p.final_stage {

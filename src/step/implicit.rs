@@ -8,9 +8,14 @@
 //! Every explicit piece reuses the fused explicit kernel, so the face values, side conditions
 //! and land treatment are those of the explicit path. Side fluxes enter the budget with the
 //! theta weights; the budget then closes to the solver tolerance.
+//!
+//! With a depth field (or a tidal level) the rows are in mass per area:
+//! `(h1 - theta dt L_up) c^{n+1} = h0 c^n + (1 - theta) dt L(c^n) + ...` with `h0`, `h1` the
+//! cell depths at the two levels and transports in `L`; the filling rate is the same at both
+//! levels, so continuity holds exactly and a uniform tracer stays uniform.
 
 use super::explicit::{blocks_for, book_sides, sweep, Explicit, StepOutcome};
-use super::kernel::{self, Block, StageParams};
+use super::kernel::{self, Block, Faces, StageParams};
 use super::{Scheme, State, TimeScheme};
 use crate::grid::Grid;
 use crate::model::Model;
@@ -50,7 +55,10 @@ pub(crate) struct Implicit {
     extra: [Vec<f64>; 5],
     a: Stencil5,
     solver: Solver,
-    assembled: Option<(f64, f64)>,
+    /// (dt, convection factor, level at the new time, filling rate) of the assembled matrix.
+    assembled: Option<(f64, f64, f64, f64)>,
+    /// Face values at the old and new levels when they are not a factor times the base.
+    faces: Option<[Vec<f64>; 4]>,
     /// Linear-solver iterations of the last step, summed over corrections.
     pub last_iterations: usize,
     /// Deferred-correction iterations of the last step.
@@ -104,6 +112,10 @@ impl Implicit {
             a,
             solver,
             assembled: None,
+            faces: m
+                .flow
+                .has_fill()
+                .then(|| std::array::from_fn(|_| vec![0.0; m.grid.padded_len()])),
             last_iterations: 0,
             last_corrections: 0,
             unsettled_steps: 0,
@@ -118,9 +130,15 @@ impl Implicit {
     /// Assembles `I - theta dt (L_up + L_diff)` at flow factor `factor` (convection only when
     /// it is implicit) and the constant side terms of the right-hand side, unless already done
     /// for this `(dt, factor)`.
-    fn assemble(&mut self, m: &Model, dt: f64, factor: f64) -> Result<(), SolveError> {
+    fn assemble(
+        &mut self,
+        m: &Model,
+        (dt, factor): (f64, f64),
+        (eta1, rate): (f64, f64),
+        formed: Option<&[Vec<f64>; 4]>,
+    ) -> Result<(), SolveError> {
         let conv_factor = if self.time.implicit_convection() { factor } else { 0.0 };
-        if self.assembled == Some((dt, conv_factor)) {
+        if self.assembled == Some((dt, conv_factor, eta1, rate)) {
             return Ok(());
         }
         let td = self.theta * dt;
@@ -136,34 +154,76 @@ impl Implicit {
             None
         };
         let (dx_cond, dy_cond) = (m.kx / g.dx, m.ky / g.dy);
+        // The new level's faces: the model's base times the factor, or the formed values.
+        let (fu, fv, fac): (&[f64], &[f64], f64) = match formed {
+            Some([_, _, u1, v1]) if conv_factor != 0.0 => (u1, v1, 1.0),
+            _ => (&m.flow.u, &m.flow.v, conv_factor),
+        };
+        let depth = m.depth_field.as_ref();
+        let s = g.stride();
         for j in 0..ny {
             for i in 0..nx {
                 let k = j * nx + i;
                 let p = g.idx(i as isize, j as isize);
-                let uw = conv_factor * m.flow.u[p];
-                let ue = conv_factor * m.flow.u[p + 1];
-                let vs = conv_factor * m.flow.v[p];
-                let vn = conv_factor * m.flow.v[p + g.stride()];
+                let uw = fac * fu[p];
+                let ue = fac * fu[p + 1];
+                let vs = fac * fv[p];
+                let vn = fac * fv[p + s];
                 let (cx, cy) = (td / g.dx, td / g.dy);
-                let (fx, fy) = (
-                    Face {
-                        c: cx,
-                        d: dx_cond,
-                        scheme,
-                    },
-                    Face {
-                        c: cy,
-                        d: dy_cond,
-                        scheme,
-                    },
-                );
+                // Face conductances K h_f / dx with a depth field (times theta dt / dx in
+                // the matrix), K / dx otherwise (the diffusion matrix adds those itself).
+                let hf = |a: &[f64], q: usize| depth.map_or(1.0, |_| a[q] + eta1);
+                let face = |c: f64, d: f64| Face { c, d, scheme };
+                let (hw, he, hs, hn) = match depth {
+                    Some(d) => (hf(&d.fx, p), hf(&d.fx, p + 1), hf(&d.fy, p), hf(&d.fy, p + s)),
+                    None => (1.0, 1.0, 1.0, 1.0),
+                };
                 let mut diag = 0.0;
                 let mut bc = 0.0;
                 // West face: flux into the cell is uw * (upwind value).
-                fx.terms(i == 0, b.west, uw, true, &mut diag, &mut aw[k], &mut bc);
-                fx.terms(i + 1 == nx, b.east, ue, false, &mut diag, &mut ae[k], &mut bc);
-                fy.terms(j == 0, b.south, vs, true, &mut diag, &mut as_[k], &mut bc);
-                fy.terms(j + 1 == ny, b.north, vn, false, &mut diag, &mut an[k], &mut bc);
+                face(cx, dx_cond * hw).terms(i == 0, b.west, uw, true, &mut diag, &mut aw[k], &mut bc);
+                face(cx, dx_cond * he).terms(i + 1 == nx, b.east, ue, false, &mut diag, &mut ae[k], &mut bc);
+                face(cy, dy_cond * hs).terms(j == 0, b.south, vs, true, &mut diag, &mut as_[k], &mut bc);
+                face(cy, dy_cond * hn).terms(j + 1 == ny, b.north, vn, false, &mut diag, &mut an[k], &mut bc);
+                if depth.is_some() && m.mask.is_wet(i, j) {
+                    // Central diffusion through open faces, and the new depth on the diagonal
+                    // (the operator adds 1 itself).
+                    let wet = |q: usize| m.wet[q] != 0;
+                    let periodic_x = m.boundaries.periodic_x();
+                    let periodic_y = m.boundaries.periodic_y();
+                    let inside = [
+                        (i > 0 || periodic_x) && wet(p - 1),
+                        (i + 1 < nx || periodic_x) && wet(p + 1),
+                        (j > 0 || periodic_y) && wet(p - s),
+                        (j + 1 < ny || periodic_y) && wet(p + s),
+                    ];
+                    let cond = [
+                        td * dx_cond * hw / g.dx,
+                        td * dx_cond * he / g.dx,
+                        td * dy_cond * hs / g.dy,
+                        td * dy_cond * hn / g.dy,
+                    ];
+                    let offs = [&mut aw[k], &mut ae[k], &mut as_[k], &mut an[k]];
+                    for ((open, c), off) in inside.into_iter().zip(cond).zip(offs) {
+                        if open {
+                            diag += c;
+                            *off += c;
+                        }
+                    }
+                    let edges = [
+                        (i == 0, b.west, cond[0]),
+                        (i + 1 == nx, b.east, cond[1]),
+                        (j == 0, b.south, cond[2]),
+                        (j + 1 == ny, b.north, cond[3]),
+                    ];
+                    for (edge, kind, c) in edges {
+                        if let (true, SideKind::Fixed { value }) = (edge, kind) {
+                            diag += 2.0 * c;
+                            bc += 2.0 * c * value;
+                        }
+                    }
+                    diag += depth.map_or(0.0, |d| d.cell[p]) + eta1 - 1.0;
+                }
                 if !m.mask.is_wet(i, j) {
                     diag = 0.0;
                     bc = 0.0;
@@ -176,8 +236,15 @@ impl Implicit {
                 self.bc[k] = bc;
             }
         }
-        // Dirichlet diffusion at fixed sides: conductance 2 theta dt K / h^2 times the value.
-        dirichlet_terms(g, &m.mask, &m.boundaries, td * m.kx, td * m.ky, &mut self.bc);
+        // Uniform depth: the diffusion matrix carries K; Dirichlet diffusion at fixed sides has
+        // the conductance 2 theta dt K / h^2 times the value. (With a depth field both are in
+        // the coefficients above.)
+        let (tkx, tky) = if depth.is_some() {
+            (0.0, 0.0)
+        } else {
+            (td * m.kx, td * m.ky)
+        };
+        dirichlet_terms(g, &m.mask, &m.boundaries, tkx, tky, &mut self.bc);
         let extra = ExtraCoefs {
             diag: d,
             aw,
@@ -186,9 +253,9 @@ impl Implicit {
             an,
         };
         let sides = Sides::from_boundaries(&m.boundaries);
-        self.a.assemble(g, &m.mask, sides, td * m.kx, td * m.ky, Some(&extra))?;
+        self.a.assemble(g, &m.mask, sides, tkx, tky, Some(&extra))?;
         self.solver.update(&self.a)?;
-        self.assembled = Some((dt, conv_factor));
+        self.assembled = Some((dt, conv_factor, eta1, rate));
         Ok(())
     }
 
@@ -203,12 +270,36 @@ impl Implicit {
         decay: f64,
         limit: f64,
     ) -> Result<StepOutcome, ImplicitFailure> {
+        // The formed faces are lent out for the step (the matrix assembly borrows self). Both
+        // levels carry the same filling rate, so continuity holds exactly.
+        let mut faces = self.faces.take();
+        if let Some([u0, v0, u1, v1]) = faces.as_mut() {
+            let (t0, t1) = (state.t, state.t + dt);
+            let rate = (m.flow.level(t1) - m.flow.level(t0)) / dt;
+            m.flow.faces_at(t0, rate, u0, v0);
+            m.flow.faces_at(t1, rate, u1, v1);
+        }
+        let out = self.advance_with(m, scheme, state, (dt, decay, limit), &faces);
+        self.faces = faces;
+        out
+    }
+
+    fn advance_with(
+        &mut self,
+        m: &Model,
+        scheme: &Scheme,
+        state: &mut State,
+        (dt, decay, limit): (f64, f64, f64),
+        formed: &Option<[Vec<f64>; 4]>,
+    ) -> Result<StepOutcome, ImplicitFailure> {
         let g = m.grid;
         let th = self.theta;
         let t0 = state.t;
         let f1 = m.flow.factor(t0 + dt);
         let mut out = StepOutcome::default();
         let implicit_conv = self.time.implicit_convection();
+        let (eta0, eta1) = (m.flow.level(t0), m.flow.level(t0 + dt));
+        let rate = (eta1 - eta0) / dt;
         // IMEX: convection first, explicitly; then the diffusion solve starts from its result.
         if let Some(ex) = self.explicit.as_mut() {
             let conv = ex.advance(m, scheme, state, dt, 1.0, limit, 0.0);
@@ -216,16 +307,26 @@ impl Implicit {
             out.transported = 0.0;
         } else {
             out.max_factor = m.flow.factor(t0).abs().max(f1.abs());
+            if formed.is_some() {
+                out.max_factor = 1.0;
+            }
         }
+        // The faces and factors at the old and new levels.
+        let (faces0, fac0, faces1, fac1) = match formed {
+            Some([u0, v0, u1, v1]) if implicit_conv => (Faces { u: u0, v: v0 }, 1.0, Faces { u: u1, v: v1 }, 1.0),
+            _ => (Faces::of(m), m.flow.factor(t0), Faces::of(m), f1),
+        };
+        // The level of the explicit part: the old one, or the new one after IMEX convection.
+        let eta_rhs = if implicit_conv { eta0 } else { eta1 };
         // Explicit part: rhs = c + (1 - theta) dt L(c) (convection at t0 only when implicit).
         fill_ghosts(&g, &m.boundaries, &mut state.c);
         if th < 1.0 {
             let (lim, factor) = if implicit_conv {
-                (scheme.limiter, m.flow.factor(t0))
+                (scheme.limiter, fac0)
             } else {
                 (Limiter::Upwind, 0.0)
             };
-            let p = stage_params((1.0 - th) * dt, factor, 1.0, limit);
+            let p = StageParams::forward((1.0 - th) * dt, factor, 1.0, limit, eta_rhs);
             let sums = sweep(
                 m,
                 lim,
@@ -235,12 +336,23 @@ impl Implicit {
                 &mut self.blocks,
                 self.rows_per_block,
                 p,
+                faces0,
             );
             book_sides(m, &sums, 1.0, (1.0 - th) * dt, &mut out.side_mass);
         } else {
             self.rhs.copy_from_slice(&state.c);
         }
-        self.assemble(m, dt, f1).map_err(ImplicitFailure::Solver)?;
+        // With a depth field the rows are in mass per area: the right-hand side times h.
+        if let Some(d) = m.depth_field.as_ref() {
+            for j in 0..g.ny {
+                let q = g.idx(0, j as isize);
+                for (r, h) in self.rhs[q..q + g.nx].iter_mut().zip(&d.cell[q..q + g.nx]) {
+                    *r *= h + eta_rhs;
+                }
+            }
+        }
+        self.assemble(m, (dt, fac1), (eta1, rate), formed.as_ref())
+            .map_err(ImplicitFailure::Solver)?;
         copy_interior(&g, &state.c, &mut self.x);
         let corrections = implicit_conv && scheme.limiter != Limiter::Upwind && !scheme.limiter.is_peclet_switched();
         let max_it = if corrections { scheme.max_corrections.max(1) } else { 1 };
@@ -256,7 +368,7 @@ impl Implicit {
                 // theta dt (L_limiter - L_up)(current iterate), convection only.
                 spread_interior(&g, &self.x, &mut self.iterate);
                 fill_ghosts(&g, &m.boundaries, &mut self.iterate);
-                let p = stage_params(th * dt, f1, 0.0, limit);
+                let p = StageParams::forward(th * dt, fac1, 0.0, limit, eta1);
                 sweep(
                     m,
                     scheme.limiter,
@@ -266,6 +378,7 @@ impl Implicit {
                     &mut self.blocks,
                     self.rows_per_block,
                     p,
+                    faces1,
                 );
                 sweep(
                     m,
@@ -276,14 +389,25 @@ impl Implicit {
                     &mut self.blocks,
                     self.rows_per_block,
                     p,
+                    faces1,
                 );
                 let w = if it >= 3 { RELAX } else { 1.0 };
                 for j in 0..g.ny {
                     let q = g.idx(0, j as isize);
                     let k0 = j * g.nx;
                     let rows = self.b[k0..k0 + g.nx].iter_mut().zip(&mut self.ho[k0..k0 + g.nx]);
-                    for ((bv, ho), (h, l)) in rows.zip(self.hi[q..q + g.nx].iter().zip(&self.lo[q..q + g.nx])) {
-                        let term = if it == 0 { h - l } else { w * (h - l) + (1.0 - w) * *ho };
+                    let hrow = m.depth_field.as_ref().map(|d| &d.cell[q..q + g.nx]);
+                    for (n, ((bv, ho), (h, l))) in rows
+                        .zip(self.hi[q..q + g.nx].iter().zip(&self.lo[q..q + g.nx]))
+                        .enumerate()
+                    {
+                        // In mass per area with a depth field (the sweeps divided by h1).
+                        let dh = hrow.map_or(1.0, |r| r[n] + eta1);
+                        let term = if it == 0 {
+                            dh * (h - l)
+                        } else {
+                            w * dh * (h - l) + (1.0 - w) * *ho
+                        };
                         *ho = term;
                         *bv += term;
                     }
@@ -340,7 +464,7 @@ impl Implicit {
         }
         spread_interior(&g, &self.x, &mut state.c);
         // Side fluxes at the new level, with the implicit weight.
-        let sums = kernel::side_sums(m, &state.c, if implicit_conv { f1 } else { 0.0 }, 1.0);
+        let sums = kernel::side_sums(m, &state.c, faces1, if implicit_conv { fac1 } else { 0.0 }, 1.0, eta1);
         book_sides(m, &sums, 1.0, th * dt, &mut out.side_mass);
         // Decay (exact factor) and the blow-up check.
         let mut transported = crate::field::Neumaier::default();
@@ -348,7 +472,14 @@ impl Implicit {
         for j in 0..g.ny {
             let q = g.idx(0, j as isize);
             let row = &mut state.c[q..q + g.nx];
-            transported.add(crate::field::sum_compensated(row));
+            match m.depth_field.as_ref() {
+                None => transported.add(crate::field::sum_compensated(row)),
+                Some(d) => {
+                    for (c, h) in row.iter().zip(&d.cell[q..q + g.nx]) {
+                        transported.add(c * (h + eta1));
+                    }
+                }
+            }
             for v in row.iter_mut() {
                 bad |= !(v.abs() <= limit);
                 *v *= decay;
@@ -357,19 +488,6 @@ impl Implicit {
         out.transported = transported.value();
         out.bad |= bad;
         Ok(out)
-    }
-}
-
-fn stage_params(dt: f64, factor: f64, diffusion: f64, limit: f64) -> StageParams {
-    StageParams {
-        dt,
-        factor,
-        alpha: 0.0,
-        beta: 1.0,
-        final_stage: false,
-        decay: 1.0,
-        limit,
-        diffusion,
     }
 }
 

@@ -8,6 +8,12 @@
 //! non-periodic sides come from [`crate::ops::boundary::side_flux`] and are summed per side for
 //! the mass budget. The whole kernel is monomorphised per limiter and per "has land" flag.
 //!
+//! With a depth field (or a tidal level) the kernel runs its `DEPTH` form: face values are
+//! transports `h_f u_f`, diffusive conductances are `h_f K / dx` with `h_f = h0_f + eta`, and the
+//! update is the conservative `c_out = (alpha h_base c_base + beta (h_src c_src - dt div F)) /
+//! h_out` with `h = h0 + eta` at the base, source and output levels of the stage; without, the
+//! depth cancels and the kernel works in concentration units, as fast as before.
+//!
 //! Long rows (from [`PIECED_FROM`] cells) are swept in pieces of [`PIECE`] cells, x-faces and
 //! update together, and while a piece is computed the inputs the next row needs for the same
 //! piece are prefetched into L2, so memory is read at an even pace rather than in bursts that
@@ -68,6 +74,49 @@ pub(crate) struct StageParams {
     pub limit: f64,
     /// Multiplies the diffusivity: 1 for the full operator, 0 for convection alone.
     pub diffusion: f64,
+    /// Tidal level of the source field (diffusive face depths and `h_src`), m.
+    pub eta_src: f64,
+    /// Tidal level of the base field, m.
+    pub eta_base: f64,
+    /// Tidal level of the output, m.
+    pub eta_out: f64,
+}
+
+impl StageParams {
+    /// A stage `out = src + dt L(src)` at flow factor `factor` with the diffusivity scaled by
+    /// `diffusion`, the level `eta` throughout.
+    pub fn forward(dt: f64, factor: f64, diffusion: f64, limit: f64, eta: f64) -> Self {
+        Self {
+            dt,
+            factor,
+            alpha: 0.0,
+            beta: 1.0,
+            final_stage: false,
+            decay: 1.0,
+            limit,
+            diffusion,
+            eta_src: eta,
+            eta_base: eta,
+            eta_out: eta,
+        }
+    }
+}
+
+/// The face values a stage reads: velocities (uniform depth) or transports, padded layout.
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct Faces<'a> {
+    pub u: &'a [f64],
+    pub v: &'a [f64],
+}
+
+impl<'a> Faces<'a> {
+    /// The model's own base field.
+    pub fn of(m: &'a Model) -> Self {
+        Self {
+            u: &m.flow.u,
+            v: &m.flow.v,
+        }
+    }
 }
 
 /// Whether rows of `nx` cells are swept in prefetched pieces (see [`PIECED_FROM`]).
@@ -87,9 +136,11 @@ pub(crate) fn stage<K: LimiterKernel, const MASKED: bool>(
     rows_per_block: usize,
     p: StageParams,
     pieced: bool,
+    faces: Faces,
 ) {
     let g = &m.grid;
     let s = g.stride();
+    let depth = m.depth_field.is_some();
     let inner = &mut out[2 * s..(g.ny + 2) * s];
     inner
         .par_chunks_mut(rows_per_block * s)
@@ -97,11 +148,14 @@ pub(crate) fn stage<K: LimiterKernel, const MASKED: bool>(
         .enumerate()
         .for_each(|(b, (chunk, blk))| {
             let j0 = b * rows_per_block;
-            match (p.alpha == 0.0, pieced) {
-                (true, false) => block::<K, MASKED, false, false>(m, src, base, chunk, blk, j0, p),
-                (true, true) => block::<K, MASKED, false, true>(m, src, base, chunk, blk, j0, p),
-                (false, false) => block::<K, MASKED, true, false>(m, src, base, chunk, blk, j0, p),
-                (false, true) => block::<K, MASKED, true, true>(m, src, base, chunk, blk, j0, p),
+            let a = (m, src, base, faces);
+            match (p.alpha == 0.0, pieced, depth) {
+                (true, _, true) => block::<K, MASKED, false, false, true>(a, chunk, blk, j0, p),
+                (false, _, true) => block::<K, MASKED, true, false, true>(a, chunk, blk, j0, p),
+                (true, false, false) => block::<K, MASKED, false, false, false>(a, chunk, blk, j0, p),
+                (true, true, false) => block::<K, MASKED, false, true, false>(a, chunk, blk, j0, p),
+                (false, false, false) => block::<K, MASKED, true, false, false>(a, chunk, blk, j0, p),
+                (false, true, false) => block::<K, MASKED, true, true, false>(a, chunk, blk, j0, p),
             }
         });
 }
@@ -120,13 +174,15 @@ fn wet_f(w: u8) -> f64 {
 }
 
 /// The four cell rows around a row of y-faces (between cell rows jf-1 and jf), the face
-/// velocities and the wet flags, each `nx` long.
+/// velocities, the face depths (the velocities again, unread, without a depth field) and the
+/// wet flags, each `nx` long.
 struct YRows<'a> {
     ll: &'a [f64],
     l: &'a [f64],
     r: &'a [f64],
     rr: &'a [f64],
     v: &'a [f64],
+    h: &'a [f64],
     wll: &'a [u8],
     wl: &'a [u8],
     wr: &'a [u8],
@@ -135,16 +191,18 @@ struct YRows<'a> {
 
 impl<'a> YRows<'a> {
     #[inline(always)]
-    fn new(m: &'a Model, src: &'a [f64], jf: usize) -> Self {
+    fn new(m: &'a Model, src: &'a [f64], jf: usize, fv: &'a [f64]) -> Self {
         let (s, nx) = (m.grid.stride(), m.grid.nx);
         let p = (jf + 2) * s + 2;
         let (a, b, c, d) = (p - 2 * s, p - s, p, p + s);
+        let hy = m.depth_field.as_ref().map_or(fv, |f| &f.fy);
         Self {
             ll: &src[a..a + nx],
             l: &src[b..b + nx],
             r: &src[c..c + nx],
             rr: &src[d..d + nx],
-            v: &m.flow.v[p..p + nx],
+            v: &fv[p..p + nx],
+            h: &hy[p..p + nx],
             wll: &m.wet[a..a + nx],
             wl: &m.wet[b..b + nx],
             wr: &m.wet[c..c + nx],
@@ -163,6 +221,7 @@ impl<'a> YRows<'a> {
             r: &self.r[r.clone()],
             rr: &self.rr[r.clone()],
             v: &self.v[r.clone()],
+            h: &self.h[r.clone()],
             wll: &self.wll[r.clone()],
             wl: &self.wl[r.clone()],
             wr: &self.wr[r.clone()],
@@ -170,10 +229,19 @@ impl<'a> YRows<'a> {
         }
     }
 
-    /// Total (convective + diffusive) flux through face i.
+    /// Total (convective + diffusive) flux through face i (with `DEPTH`, the conductance is
+    /// `coef (h0_f + eta)`).
     #[inline(always)]
-    fn flux<K: LimiterKernel, const MASKED: bool>(&self, i: usize, factor: f64, coef: f64, s: f64) -> f64 {
+    fn flux<K: LimiterKernel, const MASKED: bool, const DEPTH: bool>(
+        &self,
+        i: usize,
+        factor: f64,
+        coef: f64,
+        s: f64,
+        eta: f64,
+    ) -> f64 {
         let w = factor * self.v[i];
+        let coef = if DEPTH { coef * (self.h[i] + eta) } else { coef };
         if MASKED {
             let uu = convection::pick(w >= 0.0, wet_f(self.wll[i]), wet_f(self.wrr[i]));
             let d = coef * wet_f(self.wl[i]) * wet_f(self.wr[i]);
@@ -186,33 +254,33 @@ impl<'a> YRows<'a> {
 
 /// Fluxes through the y-faces of face row `jf` into `f`.
 #[inline(always)]
-fn y_faces<K: LimiterKernel, const MASKED: bool>(
+#[allow(clippy::too_many_arguments)]
+fn y_faces<K: LimiterKernel, const MASKED: bool, const DEPTH: bool>(
     m: &Model,
     src: &[f64],
     jf: usize,
-    factor: f64,
-    coef: f64,
-    s: f64,
+    (factor, coef, s, eta): (f64, f64, f64, f64),
+    fv: &[f64],
     f: &mut [f64],
 ) {
     let nx = m.grid.nx;
-    let y = YRows::new(m, src, jf).window(0, nx);
+    let y = YRows::new(m, src, jf, fv).window(0, nx);
     let f = &mut f[..nx];
     for (i, fi) in f.iter_mut().enumerate() {
-        *fi = y.flux::<K, MASKED>(i, factor, coef, s);
+        *fi = y.flux::<K, MASKED, DEPTH>(i, factor, coef, s, eta);
     }
 }
 
 /// Fluxes through x-faces `f0 .. f0 + f.len()` of cell row `j` (`(j, f0)`) (the west face of cell i is
 /// face i; a row has nx + 1) into `f`.
 #[inline(always)]
-fn x_faces<K: LimiterKernel, const MASKED: bool>(
+#[allow(clippy::too_many_arguments)]
+fn x_faces<K: LimiterKernel, const MASKED: bool, const DEPTH: bool>(
     m: &Model,
     src: &[f64],
     (j, f0): (usize, usize),
-    factor: f64,
-    coef: f64,
-    sd: f64,
+    (factor, coef, sd, eta): (f64, f64, f64, f64),
+    fu: &[f64],
     f: &mut [f64],
 ) {
     let g = &m.grid;
@@ -220,20 +288,23 @@ fn x_faces<K: LimiterKernel, const MASKED: bool>(
     let p0 = (j + 2) * s + f0;
     let row = &src[p0..p0 + n + 3];
     let (ll, l, r, rr) = (&row[0..n], &row[1..n + 1], &row[2..n + 2], &row[3..n + 3]);
-    let u = &m.flow.u[p0 + 2..p0 + 2 + n];
+    let u = &fu[p0 + 2..p0 + 2 + n];
+    // Face depths (the velocities again, unread, without a depth field).
+    let h = &m.depth_field.as_ref().map_or(fu, |d| &d.fx)[p0 + 2..p0 + 2 + n];
+    let cond = |i: usize| if DEPTH { coef * (h[i] + eta) } else { coef };
     if MASKED {
         let wrow = &m.wet[p0..p0 + n + 3];
         let (wll, wl, wr, wrr) = (&wrow[0..n], &wrow[1..n + 1], &wrow[2..n + 2], &wrow[3..n + 3]);
         for i in 0..n {
             let w = factor * u[i];
             let uu = convection::pick(w >= 0.0, wet_f(wll[i]), wet_f(wrr[i]));
-            let d = coef * wet_f(wl[i]) * wet_f(wr[i]);
+            let d = cond(i) * wet_f(wl[i]) * wet_f(wr[i]);
             f[i] = convection::face_flux::<K>(w, ll[i], l[i], r[i], rr[i], uu, d, sd);
         }
     } else {
         for i in 0..n {
             let w = factor * u[i];
-            f[i] = convection::face_flux::<K>(w, ll[i], l[i], r[i], rr[i], 1.0, coef, sd);
+            f[i] = convection::face_flux::<K>(w, ll[i], l[i], r[i], rr[i], 1.0, cond(i), sd);
         }
     }
 }
@@ -248,7 +319,7 @@ fn side_row(
     inner: &[f64],
     wet: &[u8],
     factor: f64,
-    coef2: f64,
+    (coef2, depth): (f64, Option<(&[f64], f64)>),
     f: &mut [f64],
     sums: &mut BlockSums,
 ) {
@@ -258,10 +329,11 @@ fn side_row(
     let low = matches!(side, Side::West | Side::South);
     let (mut fin, mut fout) = (0.0, 0.0);
     for k in 0..f.len() {
+        let c2 = depth.map_or(coef2, |(h, eta)| coef2 * (h[k] + eta));
         let flux = if wet[k] == 0 {
             0.0
         } else {
-            side_flux(kind, factor * w[k], inner[k], coef2, low)
+            side_flux(kind, factor * w[k], inner[k], c2, low)
         };
         f[k] = flux;
         let into = if low { flux } else { -flux };
@@ -296,11 +368,9 @@ fn side_face(kind: SideKind, side: Side, w: f64, inner: f64, wet: u8, coef2: f64
     Some(flux)
 }
 
-#[allow(clippy::too_many_arguments)]
-fn block<K: LimiterKernel, const MASKED: bool, const BASE: bool, const PIECED: bool>(
-    m: &Model,
-    src: &[f64],
-    base: &[f64],
+#[allow(clippy::type_complexity)]
+fn block<K: LimiterKernel, const MASKED: bool, const BASE: bool, const PIECED: bool, const DEPTH: bool>(
+    (m, src, base, faces): (&Model, &[f64], &[f64], Faces),
     chunk: &mut [f64],
     blk: &mut Block,
     j0: usize,
@@ -318,20 +388,29 @@ fn block<K: LimiterKernel, const MASKED: bool, const BASE: bool, const PIECED: b
     let sd = p.diffusion;
     let (cx2, cy2) = (2.0 * sd * coef_x, 2.0 * sd * coef_y);
     let limit = p.limit;
+    let (fu, fv) = (faces.u, faces.v);
+    // Cell and face depths (unread without a depth field).
+    let (hc, hx, hy): (&[f64], &[f64], &[f64]) = match &m.depth_field {
+        Some(d) if DEPTH => (&d.cell, &d.fx, &d.fy),
+        _ => (base, fu, fv),
+    };
+    let eta = p.eta_src;
+    let xp = (p.factor, coef_x, sd, eta);
+    let yp = (p.factor, coef_y, sd, eta);
     let Block { fx, fys, fyn, sums } = blk;
     *sums = BlockSums::default();
     // South faces of the block's first row.
-    y_faces::<K, MASKED>(m, src, j0, p.factor, coef_y, sd, fys);
+    y_faces::<K, MASKED, DEPTH>(m, src, j0, yp, fv, fys);
     if j0 == 0 {
         let q = g.idx(0, 0);
         side_row(
             b.south,
             Side::South,
-            &m.flow.v[q..q + nx],
+            &fv[q..q + nx],
             &src[q..q + nx],
             &m.wet[q..q + nx],
             p.factor,
-            cy2,
+            (cy2, DEPTH.then_some((&hy[q..q + nx], eta))),
             fys,
             sums,
         );
@@ -339,25 +418,27 @@ fn block<K: LimiterKernel, const MASKED: bool, const BASE: bool, const PIECED: b
     for r in 0..rows {
         let j = j0 + r;
         let q = g.idx(0, j as isize);
-        let west = side_face(b.west, Side::West, p.factor * m.flow.u[q], src[q], m.wet[q], cx2, sums);
+        let c2 = |k: usize| if DEPTH { cx2 * (hx[k] + eta) } else { cx2 };
+        let west = side_face(b.west, Side::West, p.factor * fu[q], src[q], m.wet[q], c2(q), sums);
         let east = side_face(
             b.east,
             Side::East,
-            p.factor * m.flow.u[q + nx],
+            p.factor * fu[q + nx],
             src[q + nx - 1],
             m.wet[q + nx - 1],
-            cx2,
+            c2(q + nx),
             sums,
         );
         let c = &src[q..q + nx];
         let bs = &base[q..q + nx];
+        let h0 = &hc[q..q + nx];
         let (cur, later) = chunk.split_at_mut((r + 1) * s);
         let o = &mut cur[r * s + 2..r * s + 2 + nx];
         let fs = &mut fys[..nx];
         // x-face fluxes of faces i0 .. i0 + f.len() of this row, the side faces replaced by
         // the side conditions.
         let faces = |i0: usize, f: &mut [f64]| {
-            x_faces::<K, MASKED>(m, src, (j, i0), p.factor, coef_x, sd, f);
+            x_faces::<K, MASKED, DEPTH>(m, src, (j, i0), xp, fu, f);
             let last = f.len() - 1;
             if let (0, Some(w)) = (i0, west) {
                 f[0] = w;
@@ -366,34 +447,51 @@ fn block<K: LimiterKernel, const MASKED: bool, const BASE: bool, const PIECED: b
                 f[last] = e;
             }
         };
-        let update = |c: f64, bs: f64, dfx: f64, dfy: f64| -> f64 {
-            let v = c - dtdx * dfx - dtdy * dfy;
-            if BASE {
-                p.alpha * bs + p.beta * v
+        // The conservative update; with DEPTH in mass per area, divided by the output depth.
+        let update = |c: f64, bs: f64, dfx: f64, dfy: f64, h0: f64| -> f64 {
+            if DEPTH {
+                let v = (h0 + p.eta_src) * c - dtdx * dfx - dtdy * dfy;
+                let num = if BASE {
+                    p.alpha * (h0 + p.eta_base) * bs + p.beta * v
+                } else {
+                    p.beta * v
+                };
+                num / (h0 + p.eta_out)
             } else {
-                p.beta * v
+                let v = c - dtdx * dfx - dtdy * dfy;
+                if BASE {
+                    p.alpha * bs + p.beta * v
+                } else {
+                    p.beta * v
+                }
             }
         };
         if j + 1 == ny && b.north != SideKind::Periodic {
             // North side row: side fluxes first, then the update.
             faces(0, &mut fx[..nx + 1]);
-            y_faces::<K, MASKED>(m, src, j + 1, p.factor, coef_y, sd, fyn);
+            y_faces::<K, MASKED, DEPTH>(m, src, j + 1, yp, fv, fyn);
             let qn = g.idx(0, ny as isize);
             side_row(
                 b.north,
                 Side::North,
-                &m.flow.v[qn..qn + nx],
+                &fv[qn..qn + nx],
                 c,
                 &m.wet[q..q + nx],
                 p.factor,
-                cy2,
+                (cy2, DEPTH.then_some((&hy[qn..qn + nx], eta))),
                 fyn,
                 sums,
             );
             let (fxw, fxe, fnr) = (&fx[..nx], &fx[1..nx + 1], &fyn[..nx]);
             let mut bad = false;
             for i in 0..nx {
-                let v = update(c[i], bs[i], fxe[i] - fxw[i], fnr[i] - fs[i]);
+                let v = update(
+                    c[i],
+                    bs[i],
+                    fxe[i] - fxw[i],
+                    fnr[i] - fs[i],
+                    if DEPTH { h0[i] } else { 0.0 },
+                );
                 bad |= !(v.abs() <= limit);
                 o[i] = v;
             }
@@ -405,7 +503,7 @@ fn block<K: LimiterKernel, const MASKED: bool, const BASE: bool, const PIECED: b
             // the next south flux. When PIECED, the inputs the next row of the block will need
             // for the same piece are prefetched meanwhile, so memory is read at an even pace
             // instead of in bursts that the hardware prefetcher restarts at every page.
-            let y = YRows::new(m, src, j + 1);
+            let y = YRows::new(m, src, j + 1, fv);
             let (piece, ahead) = if PIECED { (PIECE, r + 1 < rows) } else { (nx, false) };
             let mut bad = false;
             for i0 in (0..nx).step_by(piece) {
@@ -414,8 +512,8 @@ fn block<K: LimiterKernel, const MASKED: bool, const BASE: bool, const PIECED: b
                     // The next row reads cell row j + 3 (its north faces' far cells), its own
                     // x-face velocities, the velocities of face row j + 2, and writes its output.
                     prefetch_l2(&src[q + 3 * s + i0..q + 3 * s + i0 + nb]);
-                    prefetch_l2(&m.flow.u[q + s + i0..q + s + i0 + nb + 1]);
-                    prefetch_l2(&m.flow.v[q + 2 * s + i0..q + 2 * s + i0 + nb]);
+                    prefetch_l2(&fu[q + s + i0..q + s + i0 + nb + 1]);
+                    prefetch_l2(&fv[q + 2 * s + i0..q + 2 * s + i0 + nb]);
                     if let Some(next) = later.get(2 + i0..2 + i0 + nb) {
                         prefetch_l2(next);
                     }
@@ -424,11 +522,17 @@ fn block<K: LimiterKernel, const MASKED: bool, const BASE: bool, const PIECED: b
                 faces(i0, fxb);
                 let yb = y.window(i0, nb);
                 let (fxw, fxe) = (&fxb[..nb], &fxb[1..nb + 1]);
-                let (cb, bsb) = (&c[i0..i0 + nb], &bs[i0..i0 + nb]);
+                let (cb, bsb, hb) = (&c[i0..i0 + nb], &bs[i0..i0 + nb], &h0[i0..i0 + nb]);
                 let (ob, fsb) = (&mut o[i0..i0 + nb], &mut fs[i0..i0 + nb]);
                 for k in 0..nb {
-                    let fn_k = yb.flux::<K, MASKED>(k, p.factor, coef_y, sd);
-                    let v = update(cb[k], bsb[k], fxe[k] - fxw[k], fn_k - fsb[k]);
+                    let fn_k = yb.flux::<K, MASKED, DEPTH>(k, p.factor, coef_y, sd, eta);
+                    let v = update(
+                        cb[k],
+                        bsb[k],
+                        fxe[k] - fxw[k],
+                        fn_k - fsb[k],
+                        if DEPTH { hb[k] } else { 0.0 },
+                    );
                     bad |= !(v.abs() <= limit);
                     ob[k] = v;
                     fsb[k] = fn_k;
@@ -437,7 +541,15 @@ fn block<K: LimiterKernel, const MASKED: bool, const BASE: bool, const PIECED: b
             sums.bad |= bad;
         }
         if p.final_stage && p.decay != 1.0 {
-            sums.sum.add(row_sum(o));
+            if DEPTH {
+                let mut acc = Neumaier::default();
+                for (x, h) in o.iter().zip(h0) {
+                    acc.add(x * (h + p.eta_out));
+                }
+                sums.sum.add(acc.value());
+            } else {
+                sums.sum.add(row_sum(o));
+            }
             for x in o.iter_mut() {
                 *x *= p.decay;
             }
@@ -464,50 +576,56 @@ fn row_sum(xs: &[f64]) -> f64 {
 }
 
 /// Fluxes through the non-periodic sides of a padded field `c` (no interior work): the side
-/// terms of the budget for implicit steps, computed exactly as the sweep computes them.
-pub(crate) fn side_sums(m: &Model, c: &[f64], factor: f64, diffusion: f64) -> BlockSums {
+/// terms of the budget for implicit steps, computed exactly as the sweep computes them, with
+/// face values `faces` times `factor` and the level `eta`.
+pub(crate) fn side_sums(m: &Model, c: &[f64], faces: Faces, factor: f64, diffusion: f64, eta: f64) -> BlockSums {
     let g = &m.grid;
     let (nx, ny) = (g.nx, g.ny);
     let (cx2, cy2) = (2.0 * diffusion * m.kx / g.dx, 2.0 * diffusion * m.ky / g.dy);
     let b = &m.boundaries;
+    let (fu, fv) = (faces.u, faces.v);
+    let depth = m.depth_field.as_ref();
+    let cx = |p: usize| depth.map_or(cx2, |d| cx2 * (d.fx[p] + eta));
     let mut sums = BlockSums::default();
     for j in 0..ny {
         let q = g.idx(0, j as isize);
-        side_face(b.west, Side::West, factor * m.flow.u[q], c[q], m.wet[q], cx2, &mut sums);
+        side_face(b.west, Side::West, factor * fu[q], c[q], m.wet[q], cx(q), &mut sums);
         side_face(
             b.east,
             Side::East,
-            factor * m.flow.u[q + nx],
+            factor * fu[q + nx],
             c[q + nx - 1],
             m.wet[q + nx - 1],
-            cx2,
+            cx(q + nx),
             &mut sums,
         );
     }
     let mut scratch = [0.0f64; 1];
     for i in 0..nx {
         let q = g.idx(i as isize, 0);
+        let qn = g.idx(i as isize, ny as isize);
+        let qi = g.idx(i as isize, ny as isize - 1);
+        let hs = depth.map(|d| (&d.fy[q..q + 1], eta));
+        let hn = depth.map(|d| (&d.fy[qn..qn + 1], eta));
         side_row(
             b.south,
             Side::South,
-            &m.flow.v[q..q + 1],
+            &fv[q..q + 1],
             &c[q..q + 1],
             &m.wet[q..q + 1],
             factor,
-            cy2,
+            (cy2, hs),
             &mut scratch,
             &mut sums,
         );
-        let qn = g.idx(i as isize, ny as isize);
-        let qi = g.idx(i as isize, ny as isize - 1);
         side_row(
             b.north,
             Side::North,
-            &m.flow.v[qn..qn + 1],
+            &fv[qn..qn + 1],
             &c[qi..qi + 1],
             &m.wet[qi..qi + 1],
             factor,
-            cy2,
+            (cy2, hn),
             &mut scratch,
             &mut sums,
         );
@@ -536,17 +654,14 @@ mod tests {
         let spec = ModelSpec {
             grid,
             mask,
-            depth: 1.0,
+            depth: 1.0.into(),
             kx: 0.3,
             ky: 0.2,
             decay_rate: 0.0,
-            flow: FlowSpec {
-                kind: FlowKind::Rotation {
-                    centre: (70.0, 30.0),
-                    period: 900.0,
-                },
-                tide: None,
-            },
+            flow: FlowSpec::steady(FlowKind::Rotation {
+                centre: (70.0, 30.0),
+                period: 900.0,
+            }),
             boundaries,
             sources: vec![],
         };
@@ -562,20 +677,17 @@ mod tests {
         fill_ghosts(g, &m.boundaries, &mut c);
         let base: Vec<f64> = c.iter().map(|v| 0.5 * v + 0.25).collect();
         let p = StageParams {
-            dt: 0.2,
-            factor: 1.0,
             alpha,
             beta: 1.0 - alpha,
             final_stage: true,
             decay: 0.9,
-            limit: 1e9,
-            diffusion: 1.0,
+            ..StageParams::forward(0.2, 1.0, 1.0, 1e9, 0.0)
         };
         let rows = 8;
         [false, true].map(|pieced| {
             let mut out = vec![f64::NAN; g.padded_len()];
             let mut blocks: Vec<Block> = (0..g.ny.div_ceil(rows)).map(|_| Block::new(g.nx)).collect();
-            stage::<VanLeer, MASKED>(&m, &c, &base, &mut out, &mut blocks, rows, p, pieced);
+            stage::<VanLeer, MASKED>(&m, &c, &base, &mut out, &mut blocks, rows, p, pieced, Faces::of(&m));
             (out, blocks.iter().map(|b| b.sums).collect())
         })
     }

@@ -13,7 +13,6 @@ use crate::budget::{Budget, BudgetRow};
 use crate::error::{invalid, positive, ModelError, RunError};
 use crate::model::Model;
 use crate::ops::boundary::{Side, SideKind};
-use crate::ops::diffusion;
 use crate::ops::limiter::Limiter;
 use crate::ops::sources::decay_factor;
 use explicit::Explicit;
@@ -169,7 +168,7 @@ impl StepLimits {
         let inv = |r: f64| if r > 0.0 { 1.0 / r } else { f64::INFINITY };
         Self {
             convection: inv(conv),
-            diffusion: diffusion::stable_dt(model.kx, model.ky, model.grid.dx, model.grid.dy),
+            diffusion: if diff > 0.0 { 0.5 / diff } else { f64::INFINITY },
             positivity: inv(conv + 2.0 * diff),
         }
     }
@@ -410,13 +409,12 @@ impl Simulation {
                 }
             }
         }
-        let mass0 = model.mass(&initial);
+        let mass0 = model.mass(&initial, 0.0);
         let mut budget = Budget::new(mass0);
-        let inv_vol = 1.0 / model.cell_volume();
         for s in &model.sources {
             let m = s.mass_at_start(0.0);
             if m > 0.0 {
-                s.deposit(&mut initial, m, inv_vol);
+                model.deposit(s, &mut initial, m, 0.0);
                 budget.add_released(m);
             }
         }
@@ -513,14 +511,13 @@ impl Simulation {
             }
         }
         if decay != 1.0 {
-            budget.add_decayed((1.0 - decay) * out.transported * m.cell_volume());
+            budget.add_decayed((1.0 - decay) * out.transported * m.mass_factor());
         }
         let t1 = state.t + dt;
-        let inv_vol = 1.0 / m.cell_volume();
         for s in &m.sources {
             let mass = s.mass_between(state.t, t1);
             if mass > 0.0 {
-                s.deposit(&mut state.c, mass, inv_vol);
+                m.deposit(s, &mut state.c, mass, t1);
                 budget.add_released(mass);
             }
         }
@@ -611,7 +608,7 @@ impl Simulation {
 
     /// The mass in the domain now.
     pub fn mass(&self) -> f64 {
-        self.model.mass(&self.state.c)
+        self.model.mass(&self.state.c, self.state.t)
     }
 
     /// Measures mass, min and max now and builds a budget row.

@@ -159,7 +159,7 @@ fn puff(scn: &Scenario, u: f64, v: f64) -> Option<Puff> {
     let (mass, centre, var0) = match (scn.initial, m.sources.as_slice()) {
         (Initial::Gaussian { centre, sigma, peak }, []) => (peak * 2.0 * PI * sigma * sigma, centre, sigma * sigma),
         (Initial::Zero, [src]) => match (src.release, src.spread) {
-            (Release::Instant { mass, at }, Some(s)) if at <= 0.0 => (mass / m.depth, src.at, s * s),
+            (Release::Instant { mass, at }, Some(s)) if at <= 0.0 => (mass / m.depth.uniform()?, src.at, s * s),
             _ => return None,
         },
         _ => return None,
@@ -252,7 +252,7 @@ mod tests {
         let wet = vec![true; g.cells()];
         // The exact field holds the released mass (per unit depth) times the decay factor.
         let f = e.field(&g, &wet, 3600.0);
-        let total: f64 = f.iter().sum::<f64>() * g.cell_area() * puff.model.depth;
+        let total: f64 = f.iter().sum::<f64>() * g.cell_area() * puff.model.depth.uniform().unwrap_or(1.0);
         let expect = 1.0e13 * (-puff.model.decay_rate * 3600.0).exp();
         assert!((total / expect - 1.0).abs() < 1e-3, "{total:e} vs {expect:e}");
         // A receptor-free run to 20 h takes the plume out through the east side: no longer exact.

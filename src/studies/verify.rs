@@ -37,11 +37,11 @@ fn base_spec(grid: Grid, flow: FlowKind, boundaries: Boundaries) -> ModelSpec {
     ModelSpec {
         grid,
         mask: None,
-        depth: 1.0,
+        depth: 1.0.into(),
         kx: 0.0,
         ky: 0.0,
         decay_rate: 0.0,
-        flow: FlowSpec { kind: flow, tide: None },
+        flow: FlowSpec::steady(flow),
         boundaries,
         sources: vec![],
     }
@@ -151,7 +151,7 @@ fn puff_l1(dx: f64, limiter: Limiter) -> Result<f64, String> {
     };
     let grid = Grid::new((240.0 / dx) as usize, (160.0 / dx) as usize, dx, dx, 0.0, 0.0).map_err(|e| e.to_string())?;
     let mut sp = base_spec(grid, FlowKind::Uniform { u, v }, Boundaries::periodic());
-    (sp.kx, sp.ky, sp.depth, sp.decay_rate) = (kx, ky, h, lambda);
+    (sp.kx, sp.ky, sp.depth, sp.decay_rate) = (kx, ky, h.into(), lambda);
     let s = march(sp, scheme(limiter, 3), |x, y| at(x, y, 640.0), 200.0, |_| {})?;
     Ok(l1(&s, |x, y| at(x, y, 840.0)))
 }

@@ -17,11 +17,11 @@ pub fn spec(grid: Grid, flow: FlowKind, boundaries: Boundaries) -> ModelSpec {
     ModelSpec {
         grid,
         mask: None,
-        depth: 1.0,
+        depth: 1.0.into(),
         kx: 0.0,
         ky: 0.0,
         decay_rate: 0.0,
-        flow: FlowSpec { kind: flow, tide: None },
+        flow: FlowSpec::steady(flow),
         boundaries,
         sources: vec![],
     }

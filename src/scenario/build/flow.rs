@@ -1,29 +1,31 @@
-//! The `[flow]` section (the velocity field and its tide) and the `[boundary]` section (the
+//! The `[flow]` section (the velocity field, its openings or file, its tide and projection) and the `[boundary]` section (the
 //! kind of each side, with the periodic pairing check).
 
-use super::super::reader::{list, suggestion, type_name, Problems, Section};
-use super::{optional_table, positive, FLOW_KINDS, SIDE, SIDES};
-use crate::flow::{FlowKind, FlowSpec, Tide};
+use super::super::reader::{check, list, suggestion, type_name, Problems, Section};
+use super::{optional_table, positive, GridOut, FLOW_KINDS, OPENING, SIDE, SIDES, TIDE};
+use crate::diagnostics::advice::sig;
+use crate::flow::file::FlowFile;
+use crate::flow::{FileFlow, FlowKind, FlowSpec, Opening, Tide};
+use crate::grid::Mask;
 use crate::ops::boundary::{Boundaries, Side, SideKind};
+use std::path::Path;
+use std::sync::Arc;
 use toml::{Table, Value};
 
-/// `[flow]` (still water when absent).
-pub(super) fn flow_section(root: Section, p: &mut Problems) -> Option<FlowSpec> {
+/// `[flow]` (still water when absent). A flow file is read here, for the grid (when the grid
+/// section is valid) and checked to cover the run (`end`).
+pub(super) fn flow_section(
+    root: Section,
+    path: &Path,
+    grid: Option<&GridOut>,
+    end: Option<f64>,
+    p: &mut Problems,
+) -> Option<FlowSpec> {
     let empty = Table::new();
     let s = optional_table(root, "flow", &empty, p)?;
     let kind = match s.string("kind", p) {
         None if s.has("kind") => return None,
         None => "uniform",
-        Some(k @ ("openings" | "file")) => {
-            p.add(
-                "flow.kind",
-                format!(
-                    "flow kind \"{k}\" is not available in this version; available kinds: {}",
-                    list(FLOW_KINDS)
-                ),
-            );
-            return None;
-        }
         Some(k) if FLOW_KINDS.contains(&k) => k,
         Some(k) => {
             p.add(
@@ -38,9 +40,12 @@ pub(super) fn flow_section(root: Section, p: &mut Problems) -> Option<FlowSpec> 
         }
     };
     let ctx = format!("for flow kind \"{kind}\"");
+    let keys = |own: &[&'static str]| -> Vec<&'static str> {
+        ["kind", "tide", "project"].iter().chain(own).copied().collect()
+    };
     let base = match kind {
         "uniform" => {
-            s.check_keys(&["kind", "velocity", "tide"], &ctx, p);
+            s.check_keys(&keys(&["velocity"]), &ctx, p);
             let (u, v) = if s.has("velocity") {
                 s.pair("velocity", p)?
             } else {
@@ -49,7 +54,7 @@ pub(super) fn flow_section(root: Section, p: &mut Problems) -> Option<FlowSpec> 
             FlowKind::Uniform { u, v }
         }
         "rotation" => {
-            s.check_keys(&["kind", "centre", "period", "tide"], &ctx, p);
+            s.check_keys(&keys(&["centre", "period"]), &ctx, p);
             let centre = s.req_pair("centre", "the centre of rotation [x, y]", p);
             let period = positive(
                 s.req_num("period", "the period of one turn in seconds", p),
@@ -62,7 +67,7 @@ pub(super) fn flow_section(root: Section, p: &mut Problems) -> Option<FlowSpec> 
             }
         }
         "swirl" => {
-            s.check_keys(&["kind", "period", "speed", "tide"], &ctx, p);
+            s.check_keys(&keys(&["period", "speed"]), &ctx, p);
             let period = positive(
                 s.req_num("period", "the reversal period in seconds", p),
                 "flow.period",
@@ -74,10 +79,62 @@ pub(super) fn flow_section(root: Section, p: &mut Problems) -> Option<FlowSpec> 
                 speed: speed?,
             }
         }
+        "openings" => {
+            s.check_keys(&keys(&["opening"]), &ctx, p);
+            FlowKind::Openings(openings(&s, p)?)
+        }
+        "file" => {
+            s.check_keys(&keys(&["path"]), &ctx, p);
+            if !s.require("path", "the flow file (CSV or NetCDF)", p) {
+                return None;
+            }
+            let rel = s.string("path", p)?;
+            let joined = path.parent().unwrap_or(Path::new("")).join(rel);
+            let file = std::path::absolute(&joined).unwrap_or(joined);
+            let g = grid?;
+            let mask = g.mask.clone().unwrap_or_else(|| Mask::all_water(&g.grid));
+            let data = match FlowFile::read(&file, &g.grid, &mask) {
+                Ok(d) => d,
+                Err(msg) => {
+                    p.add("flow.path", msg);
+                    return None;
+                }
+            };
+            if let Some(end) = end {
+                if !data.covers(0.0, end) {
+                    p.add(
+                        "flow.path",
+                        format!(
+                            "{}: its time axis runs from {} s to {} s but the run needs 0 s to run.end = {} s",
+                            file.display(),
+                            sig(data.times[0], 4),
+                            sig(*data.times.last().unwrap_or(&0.0), 4),
+                            sig(end, 4)
+                        ),
+                    );
+                    return None;
+                }
+            }
+            FlowKind::File(FileFlow {
+                path: file,
+                data: Arc::new(data),
+            })
+        }
         _ => {
-            s.check_keys(&["kind", "speed", "tide"], &ctx, p);
+            s.check_keys(&keys(&["speed"]), &ctx, p);
             let speed = if s.has("speed") { s.num("speed", p) } else { Some(1.0) };
             FlowKind::Vortex { speed: speed? }
+        }
+    };
+    let project = match s.table.get("project") {
+        None => Some(true),
+        Some(Value::Boolean(b)) => Some(*b),
+        Some(other) => {
+            p.add(
+                "flow.project",
+                format!("expected true or false, found {}", type_name(other)),
+            );
+            None
         }
     };
     let tide = match s.table("tide", p) {
@@ -85,28 +142,126 @@ pub(super) fn flow_section(root: Section, p: &mut Problems) -> Option<FlowSpec> 
         None => None,
         Some(t) => {
             let ts = Section::new("flow.tide", t);
-            ts.check_keys(&["period", "phase"], "in flow.tide", p);
-            if ts.has("amplitude") {
-                // check_keys reported it as unknown; replace that with the precise reason.
-                if let Some(last) = p.0.iter_mut().rev().find(|q| q.key == "flow.tide.amplitude") {
-                    last.message =
-                        "a tidal rise and fall of the level is not available in this version; allowed keys in flow.tide: `period`, `phase`"
-                            .into();
-                }
-            }
+            ts.check_keys(TIDE, "in flow.tide", p);
             let period = positive(
                 ts.req_num("period", "the tidal period in seconds", p),
                 "flow.tide.period",
                 p,
             );
             let phase = if ts.has("phase") { ts.num("phase", p) } else { Some(0.0) };
+            let amplitude = if ts.has("amplitude") {
+                check(
+                    ts.num("amplitude", p),
+                    "flow.tide.amplitude",
+                    |a| a >= 0.0,
+                    "a level amplitude >= 0 m",
+                    p,
+                )
+            } else {
+                Some(0.0)
+            };
+            if amplitude.is_some_and(|a| a > 0.0) && kind != "openings" {
+                p.add(
+                    "flow.tide.amplitude",
+                    "a rising and falling level needs flow.kind = \"openings\" (the basin fills and drains through them); use amplitude = 0 or describe the openings",
+                );
+                return None;
+            }
             Some(Tide {
                 period: period?,
                 phase: phase?,
+                amplitude: amplitude?,
             })
         }
     };
-    Some(FlowSpec { kind: base, tide })
+    Some(FlowSpec {
+        kind: base,
+        tide,
+        project: project?,
+    })
+}
+
+/// `[[flow.opening]]`: side, from, to, discharge (default 0), share and name.
+fn openings(s: &Section, p: &mut Problems) -> Option<Vec<Opening>> {
+    let items = match s.table.get("opening") {
+        None => {
+            p.add(
+                "flow.opening",
+                "missing: flow kind \"openings\" needs at least one [[flow.opening]] with side, from, to and discharge",
+            );
+            return None;
+        }
+        Some(Value::Array(items)) => items,
+        Some(other) => {
+            p.add(
+                "flow.opening",
+                format!(
+                    "expected an array of tables (write [[flow.opening]] for each), found {}",
+                    type_name(other)
+                ),
+            );
+            return None;
+        }
+    };
+    let mut out = Vec::new();
+    let mut ok = true;
+    for (k, item) in items.iter().enumerate() {
+        let key = format!("flow.opening[{k}]");
+        let Value::Table(t) = item else {
+            p.add(
+                &key,
+                format!("expected a table ([[flow.opening]]), found {}", type_name(item)),
+            );
+            ok = false;
+            continue;
+        };
+        let o = Section::new(&key, t);
+        o.check_keys(OPENING, &format!("in {key}"), p);
+        let side = if o.require("side", "the side the opening is in (west, east, south or north)", p) {
+            o.choice("side", SIDES, p)
+        } else {
+            None
+        };
+        let from = o.req_num("from", "where the opening starts along its side, m", p);
+        let to = o.req_num("to", "where the opening ends along its side, m", p);
+        let discharge = if o.has("discharge") {
+            o.num("discharge", p)
+        } else {
+            Some(0.0)
+        };
+        let share = if o.has("share") {
+            check(
+                o.num("share", p),
+                &format!("{key}.share"),
+                |v| (0.0..=1.0).contains(&v),
+                "a fraction from 0 to 1",
+                p,
+            )
+            .map(Some)
+        } else {
+            Some(None)
+        };
+        let name = if o.has("name") {
+            o.string("name", p).map(str::to_string)
+        } else {
+            Some(format!("opening[{k}]"))
+        };
+        match (side, from, to, discharge, share, name) {
+            (Some(side), Some(from), Some(to), Some(discharge), Some(share), Some(name)) => {
+                let side = Side::ALL.into_iter().find(|x| x.name() == side).unwrap_or(Side::West);
+                out.push(Opening {
+                    name,
+                    side,
+                    from,
+                    to,
+                    discharge,
+                    share,
+                });
+            }
+            _ => ok = false,
+        }
+    }
+    ok.then_some(out)
 }
 
 /// `[boundary]` (walls when absent), with the periodic pairing check.

@@ -1,10 +1,19 @@
-//! The `[grid]` section: cell counts, cell size or extent, origin, depth and the land image.
+//! The `[grid]` section: cell counts, cell size or extent, origin, depth (a number or a depth
+//! file) and the land image.
 
-use super::super::land;
 use super::super::reader::{Problems, Section};
+use super::super::{depth, land};
 use super::{engine_problem, positive, required_table, GridOut, GRID, MAX_SIDE};
-use crate::grid::{Grid, MAX_CELLS};
-use std::path::Path;
+use crate::depth::Depth;
+use crate::grid::{Grid, Mask, MAX_CELLS};
+use std::path::{Path, PathBuf};
+use toml::Value;
+
+/// The depth as written: a number or a file.
+enum DepthIn {
+    Uniform(f64),
+    File(PathBuf),
+}
 
 /// `[grid]`, including the land image.
 pub(super) fn grid_section(root: Section, path: &Path, p: &mut Problems) -> Option<GridOut> {
@@ -43,11 +52,22 @@ pub(super) fn grid_section(root: Section, path: &Path, p: &mut Problems) -> Opti
     } else {
         Some((0.0, 0.0))
     };
-    let depth = if s.has("depth") {
-        positive(s.num("depth", p), "grid.depth", p)
-    } else {
-        Some(1.0)
+    // A number, or a file: a CSV grid or a grey-level PNG (with depth_range).
+    let depth = match s.table.get("depth") {
+        None => Some(DepthIn::Uniform(1.0)),
+        Some(Value::String(rel)) => {
+            let joined = path.parent().unwrap_or(Path::new("")).join(rel);
+            Some(DepthIn::File(std::path::absolute(&joined).unwrap_or(joined)))
+        }
+        Some(_) => positive(s.num("depth", p), "grid.depth", p).map(DepthIn::Uniform),
     };
+    let depth_range = s.pair("depth_range", p);
+    if s.has("depth_range") && !matches!(depth, Some(DepthIn::File(_))) {
+        p.add(
+            "grid.depth_range",
+            "only used with a grey-level depth image (grid.depth = \"depth.png\"); remove it",
+        );
+    }
     let land = s.string("land", p);
     let (nx, ny) = (nx?, ny?);
     if nx.saturating_mul(ny) > MAX_CELLS as i64 {
@@ -94,10 +114,24 @@ pub(super) fn grid_section(root: Section, path: &Path, p: &mut Problems) -> Opti
             }
         }
     };
+    let (depth, depth_file) = match depth? {
+        DepthIn::Uniform(h) => (Depth::Uniform(h), None),
+        DepthIn::File(file) => {
+            let all = Mask::all_water(&grid);
+            match depth::load_depth(&file, &grid, mask.as_ref().unwrap_or(&all), depth_range) {
+                Ok(v) => (Depth::Field(v), Some((file, depth_range))),
+                Err(msg) => {
+                    p.add("grid.depth", msg);
+                    return None;
+                }
+            }
+        }
+    };
     Some(GridOut {
         grid,
         mask,
-        depth: depth?,
+        depth,
+        depth_file,
         land,
     })
 }

@@ -38,15 +38,19 @@ pub(super) const TOP: &[&str] = &[
     "name", "grid", "tracer", "flow", "boundary", "initial", "source", "receptor", "scheme", "run", "output",
 ];
 /// `[grid]` keys.
-pub(super) const GRID: &[&str] = &["nx", "ny", "dx", "dy", "size", "origin", "depth", "land"];
+pub(super) const GRID: &[&str] = &["nx", "ny", "dx", "dy", "size", "origin", "depth", "depth_range", "land"];
 /// `[tracer]` keys.
 pub(super) const TRACER: &[&str] = &["name", "units", "diffusivity", "decay_rate", "t90"];
 /// `[flow]` kinds available in this version.
-pub(super) const FLOW_KINDS: &[&str] = &["uniform", "rotation", "swirl", "vortex"];
+pub(super) const FLOW_KINDS: &[&str] = &["uniform", "rotation", "swirl", "vortex", "openings", "file"];
 /// Every `[flow]` key of any kind.
-pub(super) const FLOW_ALL: &[&str] = &["kind", "velocity", "centre", "period", "speed", "tide"];
-/// `flow.tide` keys (amplitude is recognised only to say it is not available yet).
+pub(super) const FLOW_ALL: &[&str] = &[
+    "kind", "velocity", "centre", "period", "speed", "tide", "project", "opening", "path",
+];
+/// `flow.tide` keys.
 pub(super) const TIDE: &[&str] = &["period", "phase", "amplitude"];
+/// `[[flow.opening]]` keys.
+pub(super) const OPENING: &[&str] = &["name", "side", "from", "to", "discharge", "share"];
 /// `[boundary]` keys.
 pub(super) const SIDES: &[&str] = &["west", "east", "south", "north"];
 /// Keys of a side given as a table.
@@ -92,6 +96,7 @@ pub(super) fn schema(parents: &[&str]) -> Option<&'static [&'static str]> {
         ["tracer"] => TRACER,
         ["flow"] => FLOW_ALL,
         ["flow", "tide"] => TIDE,
+        ["flow", "opening"] => OPENING,
         ["boundary"] => SIDES,
         ["boundary", _] => SIDE,
         ["initial"] => INITIAL_ALL,
@@ -108,7 +113,9 @@ pub(super) fn schema(parents: &[&str]) -> Option<&'static [&'static str]> {
 struct GridOut {
     grid: Grid,
     mask: Option<Mask>,
-    depth: f64,
+    depth: crate::depth::Depth,
+    /// The depth file (absolute) and its grey-level range, when the depth is read from one.
+    depth_file: Option<(PathBuf, Option<(f64, f64)>)>,
     land: Option<PathBuf>,
 }
 
@@ -128,7 +135,7 @@ pub(super) fn parse(text: &str, path: &Path, sets: &[String], allow_unstable: bo
     let run = run_section(root, &mut p);
     let grid = grid_section(root, path, &mut p);
     let (tracer, kx, ky, decay_rate) = tracer_section(root, &mut p);
-    let flow = flow_section(root, &mut p);
+    let flow = flow_section(root, path, grid.as_ref(), run.map(|r| r.end), &mut p);
     let boundaries = boundary_section(root, &mut p);
     let initial = initial_section(root, &mut p);
     let sources = source_section(root, run.map(|r| r.end), grid.as_ref(), &mut p);
@@ -172,6 +179,7 @@ pub(super) fn parse(text: &str, path: &Path, sets: &[String], allow_unstable: bo
                 output,
                 tracer,
                 land: g.land,
+                depth_file: g.depth_file,
             })
         }
         _ => None,
