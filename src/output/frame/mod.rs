@@ -57,7 +57,7 @@ pub struct FrameSpec<'a> {
     pub ny: usize,
     /// `nx * ny` values, row-major, row 0 = south row, i fastest.
     pub values: &'a [f64],
-    /// `nx * ny` wet flags (false = land, drawn in [`LAND_RGB`]); `None` = all water.
+    /// `nx * ny` wet flags (false = land, drawn in [`LAND_RGB`](super::colour::LAND_RGB)); `None` = all water.
     pub wet: Option<&'a [bool]>,
     /// Tracer name shown in the caption, e.g. `dye`.
     pub tracer: &'a str,
