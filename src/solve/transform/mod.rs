@@ -26,7 +26,7 @@
 //! square cells). The elimination along y runs block by block while the rows are in cache,
 //! the blocks linked by a short sweep (the partition method). Cost `O(N log nx)`: FFTs of a
 //! quarter (or half) of the rows in parallel, no transposes, two passes over the field, each on
-//! a per-thread cached copy of a block of rows, large fields streamed back ([`on_rows`]).
+//! a per-thread cached copy of a block of rows, large fields streamed back ([`on_rows`](self::solve::on_rows)).
 //! Fields under 8 rows high are left to the multigrid path.
 //!
 //! Which operators qualify is decided from the matrix-free form's per-cell flags, which
@@ -95,7 +95,7 @@ pub(crate) struct Transform {
     prods: Vec<f64>,
     incoming: Vec<f64>,
     /// Whether the two full passes stream their results out of the stage (fields over
-    /// [`STREAM_BYTES`]; see [`on_rows`]).
+    /// [`STREAM_BYTES`]; see [`on_rows`](self::solve::on_rows)).
     streaming: bool,
 }
 
@@ -109,7 +109,7 @@ pub(crate) struct Transform {
 const MAX_SPREAD: f64 = 16.0;
 
 /// Fields larger than this many bytes are streamed out of the solve's two full passes (see
-/// [`on_rows`]): with the right-hand side as large, the two no longer fit a 32 MiB shared
+/// [`on_rows`](self::solve::on_rows)): with the right-hand side as large, the two no longer fit a 32 MiB shared
 /// cache, so each row written by an ordinary store would first be read from memory. Smaller
 /// fields keep ordinary stores, which leave the solution cached for whatever reads it next
 /// (streaming it too measured no faster at 1024 by 1024 cells).

@@ -24,7 +24,7 @@ thread_local! {
 /// and streamed rows are not read from memory before they are written. `f` must not wait on
 /// rayon work (the thread could run another block's `on_rows` meanwhile, and the stage's second
 /// borrow would panic).
-fn on_rows(
+pub(super) fn on_rows(
     streaming: bool,
     rows: &mut [f64],
     nx: usize,
@@ -64,10 +64,10 @@ impl Transform {
     /// Computational Physics 9, 135-211; Swarztrauber 1977, SIAM Review 19, 490-501): only the odd
     /// rows, or the rows `4 k + 3` (and field row 1, and the last odd row when the odd rows are an
     /// odd count), are transformed, and the others are recovered by tridiagonal solves along x (see
-    /// [`Tridiag`]). Two passes over the field, with short ones between and after: blocks of rows
+    /// [`Tridiag`](super::tridiag::Tridiag)). Two passes over the field, with short ones between and after: blocks of rows
     /// form the reduced right-hand sides, transform them along x (and sum `b . b`) and eliminate
     /// them along y while in cache, as if the block below were zero (every mode at once, so the
-    /// loops vectorise); column ranges link the blocks (one row per block, see [`Tridiag::link`]);
+    /// loops vectorise); column ranges link the blocks (one row per block, see [`Tridiag::link`](super::tridiag::Tridiag::link));
     /// blocks of rows finish the elimination and back-substitute, transform back, recover their
     /// rows but the first one (three, twice reduced) along x and sum their residual rows while in
     /// cache; and those first rows of each block are recovered and the rows around them summed

@@ -14,7 +14,7 @@ const COLUMNS: usize = 512;
 /// The y systems left after one or two steps of cyclic reduction, one per x mode, factored.
 ///
 /// Row `j` of the transformed operator reads `-cy u_{j-1} + tau_j u_j - cy u_{j+1} = f_j` with
-/// `tau_j = a + y_j` (`a = m + lx_k`, `y_j` as in [`XLines`]). The first step eliminates the
+/// `tau_j = a + y_j` (`a = m + lx_k`, `y_j` as in [`XLines`](super::xlines::XLines)). The first step eliminates the
 /// even rows (`u_e = (f_e + cy u_{e-1} + cy u_{e+1}) / tau_e`) and multiplies by the interior
 /// `tau`, which leaves on the odd rows `i = 0 .. n1` (row `j = 2 i + 1`) the tridiagonal
 /// system `-c1 u_{i-1} + delta_i u_i - c1 u_{i+1} = F_i` with `c1 = cy^2`,
@@ -33,7 +33,7 @@ const COLUMNS: usize = 512;
 /// dozen rows unless `cy / m` is very large.
 #[derive(Debug, Clone)]
 pub(super) struct Tridiag {
-    /// Cyclic reduction steps: 1, or 2 when the round-off allows (see [`MAX_SPREAD`]).
+    /// Cyclic reduction steps: 1, or 2 when the round-off allows (see [`MAX_SPREAD`](super::MAX_SPREAD)).
     pub(super) levels: usize,
     /// Rows of the solved system: the once-reduced one (field rows `2 k + 1`) or the
     /// twice-reduced one (field rows `4 k + 3`).

@@ -64,7 +64,7 @@ impl XLines {
     ///
     /// Pivots are carried as `p_i = cx + r_i` with `r_0 = b + ends`,
     /// `r_i = b + cx r_{i-1} / p_{i-1}`, and the last `b + ends + cx r / p` of the row before:
-    /// positive terms only, as in [`Tridiag::factor`].
+    /// positive terms only, as in [`Tridiag::factor`](super::tridiag::Tridiag::factor).
     pub(super) fn factor(&mut self, m: f64, cx: f64, cy: f64, fixed: bool, gs: f64, gn: f64) {
         self.cx = cx;
         self.ends = if fixed { 2.0 * cx } else { 0.0 };
