@@ -233,7 +233,7 @@ fn well_mixed_basin_flushes_as_a_stirred_tank() {
 fn tidal_basin(time: TimeScheme, amplitude: f64) -> (Simulation, f64) {
     let g = Grid::new(24, 16, 10.0, 10.0, 0.0, 0.0).unwrap();
     let mask = Mask::all_water(&g)
-        .with_land(&g, |x, y| y < 60.0 && (x < 80.0 || x > 120.0))
+        .with_land(&g, |x, y| y < 60.0 && !(80.0..=120.0).contains(&x))
         .unwrap();
     let period = 3600.0;
     let tide = Tide {
