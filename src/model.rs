@@ -184,6 +184,34 @@ impl Model {
         }
     }
 
+    /// Face velocities (m/s, padded) at full strength for reports and regime maps: the base
+    /// field, plus the filling field at the tide's peak rate, over the face depth at low water.
+    pub fn face_velocities(&self) -> (Vec<f64>, Vec<f64>) {
+        let f = &self.flow;
+        let Some(d) = &self.depth_field else {
+            return (f.u.clone(), f.v.clone());
+        };
+        let amp = f.spec().amplitude();
+        let rate = f
+            .spec()
+            .tide
+            .map_or(0.0, |t| amp * 2.0 * std::f64::consts::PI / t.period);
+        let (mut fu, mut fv) = (vec![0.0; f.u.len()], vec![0.0; f.v.len()]);
+        f.fill_into(&mut fu, &mut fv);
+        // The filling adds to the base's magnitude: the peak of either direction.
+        let at = |q: f64, fq: f64, h: f64| {
+            let peak = q + rate * fq.abs() * if q < 0.0 { -1.0 } else { 1.0 };
+            if h - amp > 0.0 {
+                peak / (h - amp)
+            } else {
+                0.0
+            }
+        };
+        let u = (0..fu.len()).map(|k| at(f.u[k], fu[k], d.fx[k])).collect();
+        let v = (0..fv.len()).map(|k| at(f.v[k], fv[k], d.fy[k])).collect();
+        (u, v)
+    }
+
     /// Adds `mass` released by `source` at time `t` to the padded field `c`.
     pub fn deposit(&self, source: &Source, c: &mut [f64], mass: f64, t: f64) {
         match &self.depth_field {

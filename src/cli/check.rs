@@ -295,6 +295,44 @@ fn spread(s: &regime::Spread) -> String {
 }
 
 /// The printed report (also `check.txt`).
+/// Depth, volume, discharge, residence time, tidal prism and projection in one or two lines.
+fn flow_text(r: &RegimeReport) -> String {
+    let f = &r.flow;
+    let (h0, h1) = r.depth_range;
+    let mut s = if h0 == h1 {
+        format!("water       depth {} m", sig(h0, 4))
+    } else {
+        format!("water       depth {} to {} m", sig(h0, 4), sig(h1, 4))
+    };
+    s += &format!(", volume {} m3 over {} m2", sig(f.volume, 4), sig(f.area, 4));
+    if f.discharge > 0.0 {
+        s += &format!("; through-flow {} m3/s", sig(f.discharge, 4));
+    }
+    if let Some(t) = f.residence {
+        s += &format!(", residence V/Q = {}", fmt_t(t));
+    }
+    if let Some(p) = f.prism {
+        s += &format!(
+            "; tidal prism 2 a A = {} m3 ({} of the volume)",
+            sig(p, 4),
+            percent(p / f.volume)
+        );
+    }
+    s += &format!(
+        "\nflow check  cell speeds {} to {} m/s; largest cell imbalance {} of the flow",
+        sig(f.speed.0, 3),
+        sig(f.speed.1, 3),
+        sig(f.imbalance, 2)
+    );
+    if f.projected {
+        s += &format!(
+            "; the prescribed flow's divergence ({} of its largest face discharge) was removed around land and walls (flow.project)",
+            sig(f.divergence, 2)
+        );
+    }
+    s
+}
+
 fn report_text(scn: &Scenario, r: &RegimeReport, advice: &[Advice], cost: &Cost, dir: &Path) -> String {
     let mut t = String::new();
     let mut line = |s: String| {
@@ -332,6 +370,7 @@ fn report_text(scn: &Scenario, r: &RegimeReport, advice: &[Advice], cost: &Cost,
         sig(r.max_speed, 3),
         sig(r.max_divergence, 2)
     ));
+    line(flow_text(r));
     line(format!(
         "diffusivity Kx {} m2/s, Ky {} m2/s",
         sig(r.kx, 3),

@@ -111,6 +111,9 @@ fn write_outcome(o: &tinct::run::RunOutcome, out: &mut impl std::io::Write) -> s
     )?;
     writeln!(out, "  mass: start {:.6e}, end {:.6e}; added {:.4e}, in {:.4e}, out {:.4e}, decayed {:.4e}; largest budget residual {:.1e}", s.initial_mass, s.final_mass, s.added, s.inflow, s.outflow, s.decayed, s.max_abs_residual)?;
     writeln!(out, "  concentration: min {:.4e}, max {:.4e}", s.min_ever, s.max_ever)?;
+    for w in &s.warnings {
+        writeln!(out, "  WARNING: {w}")?;
+    }
     if !s.receptors.is_empty() {
         writeln!(
             out,

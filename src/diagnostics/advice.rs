@@ -229,14 +229,14 @@ pub fn advise(model: &Model, scheme: &Scheme, r: &RegimeReport) -> Vec<Advice> {
         add(Severity::Warning, w);
     }
 
-    // A flow that is not divergence-free.
-    let scale = (r.max_speed / r.dx.min(r.dy)).max(1e-300);
-    if r.max_divergence > 1e-10 * scale {
+    // A flow that is not divergence-free (projection switched off).
+    if r.flow.divergence > crate::flow::DIVERGENCE_TOLERANCE && !r.flow.projected {
         add(
             Severity::Warning,
             format!(
-                "the flow's discrete divergence reaches {:.3e} 1/s (walls or land cut the through-flow): there the flow creates or removes water, and even bounded schemes can make new extremes",
-                r.max_divergence
+                "the flow is not divergence-free: a cell's net discharge reaches {} of the largest face discharge ({} 1/s; walls or land cut the through-flow). There the flow creates or removes water and even bounded schemes pile tracer up or make new extremes; set flow.project = true to remove the divergence around the land",
+                sig(r.flow.divergence, 2),
+                sig(r.max_divergence, 2)
             ),
         );
     }

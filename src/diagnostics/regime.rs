@@ -139,7 +139,7 @@ pub fn cell_maps(model: &Model, scheme: &Scheme, dt: f64) -> CellMaps {
     let g = &model.grid;
     let (nx, ny, s) = (g.nx, g.ny, g.stride());
     let n = g.cells();
-    let (u, v) = (&model.flow.u, &model.flow.v);
+    let (u, v) = model.face_velocities();
     let dt = if dt.is_finite() { dt } else { 0.0 };
     let mut m = CellMaps {
         nx,
@@ -305,6 +305,10 @@ pub struct RegimeReport {
     pub max_speed: f64,
     /// Largest discrete divergence of the base flow, 1/s.
     pub max_divergence: f64,
+    /// Discharges, residence time, tidal prism, divergence and projection of the flow.
+    pub flow: crate::flow::FlowReport,
+    /// Shallowest and deepest still water, m.
+    pub depth_range: (f64, f64),
     /// Cell Peclet numbers along x over wet cells.
     pub peclet_x: Spread,
     /// Cell Peclet numbers along y over wet cells.
@@ -374,16 +378,17 @@ pub fn analyse(model: &Model, scheme: &Scheme, dt: f64) -> (CellMaps, RegimeRepo
     let lim = StepLimits::of(model);
     let bound = binding_bound(&lim, scheme);
     let mut fr = [f64::INFINITY, f64::NEG_INFINITY, f64::INFINITY, f64::NEG_INFINITY];
+    let (fu, fv) = model.face_velocities();
     for j in 0..g.ny as isize {
         for i in 0..=g.nx as isize {
-            let x = model.flow.u[g.idx(i, j)];
+            let x = fu[g.idx(i, j)];
             fr[0] = fr[0].min(x);
             fr[1] = fr[1].max(x);
         }
     }
     for j in 0..=g.ny as isize {
         for i in 0..g.nx as isize {
-            let x = model.flow.v[g.idx(i, j)];
+            let x = fv[g.idx(i, j)];
             fr[2] = fr[2].min(x);
             fr[3] = fr[3].max(x);
         }
@@ -408,6 +413,11 @@ pub fn analyse(model: &Model, scheme: &Scheme, dt: f64) -> (CellMaps, RegimeRepo
         face_velocity_range: fr,
         max_speed: maps.speed.iter().copied().fold(0.0, f64::max),
         max_divergence: model.flow.max_divergence(),
+        flow: model.flow.report().clone(),
+        depth_range: model
+            .depth_field
+            .as_ref()
+            .map_or((model.depth, model.depth), |d| d.range),
         peclet_x: Spread::of(&maps.pe_x, w),
         peclet_y: Spread::of(&maps.pe_y, w),
         share_peclet_x_above_2: share(&maps.pe_x, w, above),

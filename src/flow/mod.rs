@@ -289,6 +289,21 @@ impl Flow {
         }
     }
 
+    /// Writes the filling field (transport per unit rate of rise, m2/s per m/s) into `u`, `v`;
+    /// zeros without a tidal level.
+    pub fn fill_into(&self, u: &mut [f64], v: &mut [f64]) {
+        match &self.fill {
+            Some((fu, fv)) => {
+                u.copy_from_slice(fu);
+                v.copy_from_slice(fv);
+            }
+            None => {
+                u.fill(0.0);
+                v.fill(0.0);
+            }
+        }
+    }
+
     /// Largest per-cell `|div u|` of the base field, 1/s (round-off for stream-function and
     /// projected flows; non-zero where walls or land cut an unprojected through-flow).
     pub fn max_divergence(&self) -> f64 {

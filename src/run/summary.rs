@@ -211,6 +211,9 @@ pub struct RunSummary {
     pub sides: Vec<SideBudget>,
     /// Largest discrete divergence of the base flow, 1/s.
     pub max_flow_divergence: f64,
+    /// Discharges, residence time V/Q, tidal prism, cell speeds, the largest cell imbalance
+    /// and whether a divergent flow was projected.
+    pub flow: crate::flow::FlowReport,
     /// Numerical choices.
     pub scheme: SchemeFacts,
     /// Frames written.
@@ -309,6 +312,7 @@ impl RunSummary {
                 })
                 .collect(),
             max_flow_divergence: sim.model.flow.max_divergence(),
+            flow: sim.model.flow.report().clone(),
             scheme: SchemeFacts {
                 convection: scn.scheme.limiter.name().into(),
                 time: scn.scheme.time.name().into(),

@@ -551,6 +551,13 @@ impl Simulation {
     /// deferred correction stalled.
     pub fn warnings(&self) -> Vec<String> {
         let mut w = scheme_warnings(&self.model, &self.scheme, self.dt_max);
+        let f = self.model.flow.report();
+        if f.divergence > crate::flow::DIVERGENCE_TOLERANCE && !f.projected {
+            w.push(format!(
+                "the flow is not divergence-free (a cell's net discharge reaches {} of the largest face discharge) and flow.project = false: the flow creates or removes water there, so concentrations can pile up or reach new extremes",
+                crate::diagnostics::advice::sig(f.divergence, 2)
+            ));
+        }
         if let Stepper::Implicit(imp) = &self.stepper {
             if imp.unsettled_steps > 0 {
                 w.push(format!(
