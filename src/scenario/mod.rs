@@ -18,10 +18,13 @@
 
 mod build;
 mod depth;
+mod examples;
 mod land;
 mod overrides;
 mod reader;
 mod resolved;
+
+pub use examples::{example_files, write_example, ExampleFile};
 
 use crate::initial::Initial;
 use crate::model::{Model, ModelSpec};
@@ -236,15 +239,25 @@ impl PartialEq for Scenario {
 }
 
 /// Names of the shipped example scenarios (`tinct example NAME`).
-pub const EXAMPLES: &[&str] = &["rotating-cone", "slotted-disk", "swirl", "gaussian-puff"];
+pub const EXAMPLES: &[&str] = &[
+    "rotating-cone",
+    "slotted-disk",
+    "swirl",
+    "gaussian-puff",
+    "marina",
+    "outfall",
+];
 
-/// The text of the shipped example scenario `name`, if there is one.
+/// The text of the shipped example scenario `name`, if there is one. Some examples read data
+/// files next to them ([`example_files`]; [`write_example`] writes the whole set).
 pub fn example(name: &str) -> Option<&'static str> {
     match name {
         "rotating-cone" => Some(include_str!("../../scenarios/rotating-cone.toml")),
         "slotted-disk" => Some(include_str!("../../scenarios/slotted-disk.toml")),
         "swirl" => Some(include_str!("../../scenarios/swirl.toml")),
         "gaussian-puff" => Some(include_str!("../../scenarios/gaussian-puff.toml")),
+        "marina" => Some(include_str!("../../scenarios/marina.toml")),
+        "outfall" => Some(include_str!("../../scenarios/outfall.toml")),
         _ => None,
     }
 }
