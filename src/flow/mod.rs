@@ -5,7 +5,7 @@
 //! `idx(i, j)`). Analytic flows are evaluated through a stream function at cell corners,
 //! `u = dpsi/dy`, `v = -dpsi/dx` as differences, so the discrete divergence of every cell is
 //! zero to round-off. Flow through openings comes from a potential-flow solve
-//! ([`potential`]), and a prescribed or file flow that land or walls make divergent is
+//! (the `potential` module), and a prescribed or file flow that land or walls make divergent is
 //! projected onto a divergence-free one around the land (`project`, default on).
 //!
 //! With a uniform depth the face arrays hold velocities (m/s); with a depth field or a tidal
