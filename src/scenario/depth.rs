@@ -11,12 +11,6 @@ use crate::diagnostics::advice::sig;
 use crate::grid::{Grid, Mask};
 use std::path::Path;
 
-/// Largest accepted image side, pixels.
-const MAX_SIDE_PX: u32 = 1 << 14;
-
-/// Largest relative difference between the image's and the grid's aspect ratios.
-const ASPECT_TOLERANCE: f64 = 0.01;
-
 /// Largest CSV depth file accepted, bytes.
 const MAX_CSV_BYTES: u64 = 1 << 30;
 
@@ -164,47 +158,14 @@ fn read_png(path: &Path, grid: &Grid, range: Option<(f64, f64)>) -> Result<Vec<f
             sig(deep, 4)
         ));
     }
-    let reader = image::ImageReader::open(path).map_err(|e| format!("cannot open {name}: {e}"))?;
-    let mut reader = reader
-        .with_guessed_format()
-        .map_err(|e| format!("cannot read {name}: {e}"))?;
-    let mut limits = image::Limits::default();
-    limits.max_image_width = Some(MAX_SIDE_PX);
-    limits.max_image_height = Some(MAX_SIDE_PX);
-    limits.max_alloc = Some(1 << 30);
-    reader.limits(limits);
-    let img = reader
-        .decode()
-        .map_err(|e| format!("cannot decode {name} as an image (a PNG is expected): {e}"))?;
-    let grey = img.to_luma16();
-    let (w, h) = grey.dimensions();
-    if w == 0 || h == 0 {
-        return Err(format!("{name} is an empty image"));
-    }
-    let image_aspect = w as f64 / h as f64;
-    let grid_aspect = grid.lx() / grid.ly();
-    if (image_aspect / grid_aspect - 1.0).abs() > ASPECT_TOLERANCE {
-        return Err(format!(
-            "{name} is {w} by {h} pixels (aspect {}) but the grid is {} by {} m (aspect {}): \
-             the aspects must agree within 1%",
-            sig(image_aspect, 4),
-            sig(grid.lx(), 4),
-            sig(grid.ly(), 4),
-            sig(grid_aspect, 4)
-        ));
-    }
-    let mut depth = Vec::with_capacity(grid.cells());
-    for j in 0..grid.ny {
-        // Row 0 of the grid is the south edge, the image's last row (as for the land mask).
-        let py = (((grid.ny - 1 - j) as f64 + 0.5) * h as f64 / grid.ny as f64) as u32;
-        for i in 0..grid.nx {
-            let px = ((i as f64 + 0.5) * w as f64 / grid.nx as f64) as u32;
-            let level = grey.get_pixel(px.min(w - 1), py.min(h - 1)).0[0];
-            // 8-bit levels arrive scaled by 257, so level / 65535 is the same fraction.
+    // 8-bit levels arrive scaled by 257, so level / 65535 is the same fraction.
+    let depth = super::land::grid_image(path, grid)?
+        .into_iter()
+        .map(|level| {
             let f = f64::from(level) / 65535.0;
-            depth.push(shallow * (1.0 - f) + deep * f);
-        }
-    }
+            shallow * (1.0 - f) + deep * f
+        })
+        .collect();
     Ok(depth)
 }
 
