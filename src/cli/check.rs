@@ -399,6 +399,14 @@ fn report_text(scn: &Scenario, r: &RegimeReport, advice: &[Advice], cost: &Cost,
         sig(l.diffusion, 4),
         sig(l.positivity, 4)
     ));
+    line(format!(
+        "no new extrema (explicit convection; Courant-number sum, with explicit diffusion C (1 + sup psi/r / 2) + 2 D <= 1): upwind 1, minmod 0.667, van_albada 0.624, van_leer, mc, superbee and koren 0.5{}",
+        match (l.no_new_extrema, l.tvd_courant) {
+            (Some(b), Some(c)) => format!("; '{}' here: {} s (Courant sum {})", sch.limiter.name(), sig(b, 4), sig(c, 3)),
+            (None, None) => format!("; '{}' is unbounded: it oscillates at any step", sch.limiter.name()),
+            _ => String::new(),
+        }
+    ));
     let how = match sch.dt {
         Some(_) => "fixed".to_string(),
         None => format!("automatic, target Courant {}", sch.courant),

@@ -280,6 +280,12 @@ pub struct Limits {
     /// diffusion for explicit, convection for IMEX, none for implicit and Crank–Nicolson).
     #[serde(serialize_with = "num")]
     pub binding: f64,
+    /// The largest step at which the run's limiter with explicit convection makes no new
+    /// extrema ([`StepLimits::no_new_extrema`]); `None` for unbounded schemes and implicit
+    /// convection.
+    pub no_new_extrema: Option<f64>,
+    /// The Courant-number sum of that bound ([`crate::ops::limiter::Limiter::tvd_courant`]).
+    pub tvd_courant: Option<f64>,
 }
 
 /// Everything `tinct check` reports, with every number.
@@ -432,6 +438,11 @@ pub fn analyse(model: &Model, scheme: &Scheme, dt: f64) -> (CellMaps, RegimeRepo
             diffusion: lim.diffusion,
             positivity: lim.positivity,
             binding: bound,
+            no_new_extrema: (!scheme.time.implicit_convection())
+                .then(|| StepLimits::no_new_extrema(model, scheme.limiter, scheme.time == TimeScheme::Explicit))
+                .flatten()
+                .filter(|b| b.is_finite()),
+            tvd_courant: scheme.limiter.tvd_courant(),
         },
         dt,
         dt_fixed: scheme.dt.is_some(),

@@ -115,6 +115,32 @@ impl Limiter {
         !matches!(self, Limiter::Central | Limiter::Quick)
     }
 
+    /// `sup psi(r)/r` over r > 0 for the bounded limiters (`None` for central and QUICK): 0 for
+    /// upwind and the Peclet-switched schemes (positive coefficients), 1 for minmod,
+    /// `(1 + sqrt 2)/2` for van Albada (at r = sqrt 2 - 1), 2 for van Leer, MC, superbee and
+    /// Koren (as r -> 0).
+    pub fn slope_bound(self) -> Option<f64> {
+        match self {
+            Limiter::Upwind | Limiter::Hybrid | Limiter::PowerLaw => Some(0.0),
+            Limiter::Minmod => Some(1.0),
+            Limiter::VanAlbada => Some(0.5 * (1.0 + std::f64::consts::SQRT_2)),
+            Limiter::VanLeer | Limiter::Mc | Limiter::Superbee | Limiter::Koren => Some(2.0),
+            Limiter::Central | Limiter::Quick => None,
+        }
+    }
+
+    /// The largest Courant-number sum at which one forward-Euler stage with this limiter makes
+    /// no new extrema: `C (1 + sup psi(r)/r / 2) <= 1`. Derivation (Harten 1983, in Sweby's
+    /// 1984 face-value form): for u > 0 the update is `c_i - A (c_i - c_{i-1})` with
+    /// `A = C (1 + psi(r_i)/(2 r_i) - psi(r_{i-1})/2)`; `0 <= psi <= 2` keeps `A >= 0` and the
+    /// bound keeps `A <= 1`, so the new value is a convex combination of old ones. Each stage of
+    /// the SSP Runge–Kutta schemes used has coefficient 1, so the bound holds for 1 to 3 stages.
+    /// 1 for upwind, 2/3 for minmod, 0.624 for van Albada, 1/2 for van Leer, MC, superbee and
+    /// Koren; `None` for the unbounded schemes.
+    pub fn tvd_courant(self) -> Option<f64> {
+        self.slope_bound().map(|s| 1.0 / (1.0 + 0.5 * s))
+    }
+
     /// psi(r), for tests and diagnostics (the time loop uses the monomorphised kernels). The
     /// Peclet-switched schemes have no psi(r); their value here is that of their high-Peclet
     /// limit, upwind (0).
@@ -389,6 +415,31 @@ mod tests {
     /// minmod and superbee Roe (1985, 1986), van Leer (1974), van Albada, van Leer & Roberts
     /// (1982), MC van Leer (1977), Koren (1993, converted to Sweby's r), QUICK Leonard (1979)
     /// (3 + r)/4. Values worked by hand from those formulas.
+    /// The slope bounds are the suprema of psi(r)/r (sampled densely over r > 0; the formulas'
+    /// own values, common practice) and psi stays within [0, 2] (Sweby 1984).
+    #[test]
+    fn slope_bounds_are_the_suprema_of_psi_over_r() {
+        for l in Limiter::ALL {
+            let Some(s) = l.slope_bound() else {
+                assert!(!l.is_bounded());
+                continue;
+            };
+            let mut sup = 0.0f64;
+            for k in 0..=200_000 {
+                let r = 10f64.powf(-8.0 + 16.0 * k as f64 / 200_000.0);
+                let p = l.psi(r);
+                assert!((0.0..=2.0 + 1e-12).contains(&p), "{l:?}: psi({r}) = {p}");
+                sup = sup.max(p / r);
+            }
+            assert!(sup <= s * (1.0 + 1e-12), "{l:?}: sup {sup} above {s}");
+            assert!(sup >= s * (1.0 - 1e-6), "{l:?}: sup {sup} below {s}");
+        }
+        assert_eq!(Limiter::VanLeer.tvd_courant(), Some(0.5));
+        assert_eq!(Limiter::Minmod.tvd_courant(), Some(2.0 / 3.0));
+        assert!((Limiter::VanAlbada.tvd_courant().unwrap() - 0.6237).abs() < 1e-4);
+        assert_eq!(Limiter::Central.tvd_courant(), None);
+    }
+
     #[test]
     fn published_values() {
         let rs = [0.5, 1.0, 2.0, 3.0, 10.0];

@@ -10,6 +10,7 @@ mod implicit;
 pub(crate) mod kernel;
 
 use crate::budget::{Budget, BudgetRow};
+use crate::diagnostics::advice::sig;
 use crate::error::{invalid, positive, ModelError, RunError};
 use crate::model::Model;
 use crate::ops::boundary::{Side, SideKind};
@@ -177,6 +178,23 @@ impl StepLimits {
     pub fn stable(&self) -> f64 {
         self.convection.min(self.diffusion)
     }
+
+    /// The largest step at which explicit convection with `limiter` makes no new extrema:
+    /// `(C (1 + sup psi(r)/r / 2) + 2 D) <= 1` with C the Courant-number sum and D the
+    /// diffusion number per unit step, the diffusion only when it is explicit
+    /// ([`Limiter::tvd_courant`]); `None` for the unbounded schemes, infinite when nothing
+    /// moves.
+    pub fn no_new_extrema(model: &Model, limiter: Limiter, explicit_diffusion: bool) -> Option<f64> {
+        let s = limiter.slope_bound()?;
+        let conv = model.flow.courant_rate() * model.flow.max_factor();
+        let diff = if explicit_diffusion {
+            model.diffusion_rate()
+        } else {
+            0.0
+        };
+        let rate = conv * (1.0 + 0.5 * s) + 2.0 * diff;
+        Some(if rate > 0.0 { 1.0 / rate } else { f64::INFINITY })
+    }
 }
 
 /// The largest step of a run. A fixed `dt` is checked against the stability bound of the
@@ -255,6 +273,14 @@ pub fn max_step(model: &Model, scheme: &Scheme) -> Result<f64, ModelError> {
         _ if conv > 0.0 => scheme.courant / conv,
         _ => scheme.courant / (2.0 * diff),
     };
+    // Bounded limiters with explicit convection: never above the no-new-extrema step.
+    let dt = match scheme.time {
+        TimeScheme::Explicit | TimeScheme::Imex => {
+            let explicit_diffusion = scheme.time == TimeScheme::Explicit;
+            StepLimits::no_new_extrema(model, scheme.limiter, explicit_diffusion).map_or(dt, |b| dt.min(b))
+        }
+        _ => dt,
+    };
     if scheme.time == TimeScheme::Imex && scheme.courant > 1.0 && conv > 0.0 {
         return Err(invalid(
             "scheme.courant",
@@ -296,6 +322,30 @@ pub fn scheme_warnings(model: &Model, scheme: &Scheme, dt: f64) -> Vec<String> {
                 scheme.time.name(),
                 1.0 / (1.0 - th)
             ));
+        }
+    }
+    if !scheme.time.implicit_convection() {
+        let explicit_diffusion = scheme.time == TimeScheme::Explicit;
+        if let (Some(bound), Some(courant)) = (
+            StepLimits::no_new_extrema(model, scheme.limiter, explicit_diffusion),
+            scheme.limiter.tvd_courant(),
+        ) {
+            let name = scheme.limiter.name();
+            if dt > bound * (1.0 + 1e-9) {
+                w.push(format!(
+                    "the step {} s is above the no-new-extrema step of '{name}', {} s (Courant-number sum {} at most, times (1 + 2 diffusion numbers) with explicit diffusion: C (1 + sup psi(r)/r / 2) <= 1); the results can overshoot or undershoot; it is stable, but a smaller step or the automatic one keeps the limiter's bounds",
+                    sig(dt, 4),
+                    sig(bound, 4),
+                    sig(courant, 4)
+                ));
+            } else if scheme.dt.is_none() && scheme.courant > courant * (1.0 + 1e-9) && c > 0.0 {
+                w.push(format!(
+                    "scheme.courant = {} is above the no-new-extrema Courant-number sum of '{name}', {}: the automatic step was capped there (Courant sum {})",
+                    sig(scheme.courant, 4),
+                    sig(courant, 4),
+                    sig(c, 3)
+                ));
+            }
         }
     }
     if scheme.time.implicit_convection() && scheme.limiter != Limiter::Upwind && c > 2.0 {
