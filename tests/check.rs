@@ -294,3 +294,34 @@ fn the_puff_run_reports_advice_and_its_effective_diffusivity() {
         assert!(s["effective_diffusivity_reason"].is_string());
     }
 }
+
+#[test]
+fn advice_never_says_central_falls_back_to_upwind() {
+    // Regression: the note on numerical diffusion said every non-upwind scheme "falls back to
+    // upwind near extrema"; central and QUICK never do (common practice: they are linear).
+    let root = common::root();
+    let dir = tempfile::tempdir().unwrap();
+    let scn = root.join("scenarios/gaussian-puff.toml");
+    for (scheme, falls_back) in [("central", false), ("quick", false), ("van_leer", true)] {
+        let out = common::tinct(
+            &[
+                "check",
+                scn.to_str().unwrap(),
+                "--out",
+                dir.path().to_str().unwrap(),
+                "--set",
+                &format!("scheme.convection={scheme}"),
+            ],
+            dir.path(),
+        );
+        let text = String::from_utf8_lossy(&out.stdout);
+        assert_eq!(
+            text.contains("falls back to upwind only"),
+            falls_back,
+            "{scheme}: {text}"
+        );
+        if !falls_back {
+            assert!(text.contains("never falls back"), "{scheme}: {text}");
+        }
+    }
+}

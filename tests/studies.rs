@@ -250,3 +250,52 @@ fn verify_passes_and_names_a_source_on_every_row() {
         assert_eq!(cols[5], "yes", "{r}");
     }
 }
+
+#[test]
+fn compare_gives_no_numerical_diffusivity_where_the_moment_method_fails() {
+    // Regression: `compare` reported k_numerical = -0.34 m2/s for every scheme on a basin with
+    // land and several releases, and counted central's oscillation as diffusion. The moment
+    // method (variance growing as 2 K t for one release in open water; Taylor 1921) is valid only
+    // for one release spreading freely, by a scheme that does not oscillate.
+    let dir = tempfile::tempdir().unwrap();
+    let scn = root().join("scenarios/marina.toml");
+    let o = tinct(
+        &[
+            "compare",
+            scn.to_str().unwrap(),
+            "--schemes",
+            "upwind,central",
+            "--out",
+            "out",
+            "--set",
+            "run.end=1800",
+            "--quiet",
+        ],
+        dir.path(),
+    );
+    let out = text(&o);
+    assert!(o.status.success(), "{out}");
+    let rows = read_metrics(&dir.path().join("out/marina/compare/metrics.csv"));
+    for (name, v) in &rows {
+        assert!(v[7].is_nan(), "{name}: k_numerical {} on a basin with land", v[7]);
+    }
+    assert!(out.contains("k_numerical not given") && out.contains("land"), "{out}");
+    let cone = root().join("scenarios/rotating-cone.toml");
+    let o = tinct(
+        &[
+            "compare",
+            cone.to_str().unwrap(),
+            "--schemes",
+            "central,van_leer",
+            "--out",
+            "out",
+            "--quiet",
+        ],
+        dir.path(),
+    );
+    let out = text(&o);
+    let rows = read_metrics(&dir.path().join("out/rotating-cone/compare/metrics.csv"));
+    let get = |name: &str| rows.iter().find(|r| r.0 == name).map(|r| r.1.clone()).unwrap();
+    assert!(get("central")[7].is_nan() && out.contains("oscillates"), "{out}");
+    assert!(get("van_leer")[7].is_finite(), "{out}");
+}

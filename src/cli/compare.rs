@@ -115,6 +115,18 @@ pub fn main(a: CompareArgs) -> Result<(), Failure> {
         "l1, l2, linf relative to the reference's norms; k_numerical = mean over x and y of (moment-growth diffusivity - physical K), m2/s; {} run(s) at a time, so wall seconds include sharing the cores",
         report.concurrent
     );
+    let mut reasons: Vec<(String, Vec<&str>)> = Vec::new();
+    for r in &report.rows {
+        if let Some(why) = &r.k_numerical_reason {
+            match reasons.iter_mut().find(|(w, _)| w == why) {
+                Some((_, labels)) => labels.push(&r.label),
+                None => reasons.push((why.clone(), vec![&r.label])),
+            }
+        }
+    }
+    for (why, labels) in &reasons {
+        println!("k_numerical not given for {}: {why}", labels.join(", "));
+    }
     for r in &report.rows {
         for w in &r.warnings {
             eprintln!("tinct: warning ({}): {w}", r.label);

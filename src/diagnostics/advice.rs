@@ -207,9 +207,17 @@ pub fn advise(model: &Model, scheme: &Scheme, r: &RegimeReport) -> Vec<Advice> {
         let mut text = diffusion_sentence(r);
         if upwind && big {
             text.push_str(": with upwind convection the spread of a plume is mostly numerical; a bounded limiter such as van_leer keeps fronts much sharper");
-        } else if !upwind {
+        } else if scheme.limiter.is_peclet_switched() {
+            text.push_str(&format!(
+                " (for '{lname}', which is upwind wherever the cell Peclet number exceeds 2, this is what it adds there)"
+            ));
+        } else if scheme.limiter.is_bounded() {
             text.push_str(&format!(
                 " (an upper bound for '{lname}', which falls back to upwind only near extrema and steep fronts)"
+            ));
+        } else {
+            text.push_str(&format!(
+                " (not what '{lname}' adds: it never falls back to upwind; it has no numerical diffusion of this kind but oscillates instead where the cell Peclet number exceeds 2)"
             ));
         }
         if let Some(s) = spacing_sentence(r) {

@@ -15,6 +15,14 @@ use crate::ops::boundary::{Boundaries, Side};
 use crate::solve::{Solver, SolverParams, Stencil5};
 use std::collections::VecDeque;
 
+/// Relative residual the potential solve aims at.
+const TARGET: f64 = 1e-12;
+
+/// Relative residual of a stalled potential solve that is still kept (the spanning-tree pass
+/// then balances every cell exactly; the field differs from the exact potential flow by about
+/// this fraction).
+const ACCEPT: f64 = 1e-8;
+
 /// Discharges through every face, m3/s, positive along +x / +y. x-face (i, j) for i in
 /// 0..=nx is the west face of cell (i, j); y-face (i, j) for j in 0..=ny the south face. With
 /// periodic sides the last face of a line is the first (only index 0 is used).
@@ -313,14 +321,21 @@ impl<'a> Net<'a> {
         };
         let a = Stencil5::new(nx, ny, self.px, self.py, diag, aw, ae, as_, an, Some(land)).map_err(fail)?;
         let params = SolverParams {
-            rtol: 1e-12,
-            max_iter: 2000,
+            rtol: TARGET,
+            max_iter: 1000,
             ..SolverParams::default()
         };
         let mut solver = Solver::new(&a, params).map_err(fail)?;
         let mut x = vec![0.0; n];
         if b.iter().any(|&v| v != 0.0) {
-            solver.solve(&a, &b, &mut x).map_err(fail)?;
+            match solver.solve(&a, &b, &mut x) {
+                Ok(_) => {}
+                // On large grids round-off can stall the iteration a little above the target;
+                // `settle` removes what is left exactly, so a near-solution is kept.
+                Err(crate::solve::SolveError::NotConverged { relative_residual, .. }) if relative_residual < ACCEPT => {
+                }
+                Err(e) => return Err(fail(e)),
+            }
         }
         Ok(x)
     }

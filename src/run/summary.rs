@@ -55,6 +55,22 @@ pub struct EffectiveDiffusivity {
     pub note: String,
 }
 
+/// Why the moment method cannot measure an effective diffusivity for `scn` (`None` when the
+/// tracer comes from one release: one instantaneous source over a zero initial field, or a
+/// Gaussian or cone initial field without sources).
+pub fn single_release_refusal(scn: &Scenario) -> Option<String> {
+    let instant = |s: &crate::ops::sources::SourceSpec| matches!(s.release, Release::Instant { .. });
+    match (&scn.initial, scn.model.sources.as_slice()) {
+        (Initial::Zero, [s]) if instant(s) => None,
+        (Initial::Gaussian { .. } | Initial::Cone { .. }, []) => None,
+        (Initial::Zero, []) => Some("no tracer is released".to_string()),
+        _ => Some(
+            "not a single release (measured only for one instantaneous source, or a Gaussian or cone initial field without sources)"
+                .to_string(),
+        ),
+    }
+}
+
 /// Follows a single release's moments at frame times and keeps the first and last frames where
 /// the plume (centroid plus or minus three standard deviations) is away from the sides.
 #[derive(Debug, Clone)]
@@ -71,16 +87,7 @@ impl PlumeTrack {
     /// instantaneous source over a zero initial field, or a Gaussian or cone initial field
     /// without sources).
     pub fn new(scn: &Scenario) -> Self {
-        let instant = |s: &crate::ops::sources::SourceSpec| matches!(s.release, Release::Instant { .. });
-        let refused = match (&scn.initial, scn.model.sources.as_slice()) {
-            (Initial::Zero, [s]) if instant(s) => None,
-            (Initial::Gaussian { .. } | Initial::Cone { .. }, []) => None,
-            (Initial::Zero, []) => Some("no tracer is released".to_string()),
-            _ => Some(
-                "not a single release (measured only for one instantaneous source, or a Gaussian or cone initial field without sources)"
-                    .to_string(),
-            ),
-        };
+        let refused = single_release_refusal(scn);
         Self {
             refused,
             first: None,

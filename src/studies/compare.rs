@@ -113,8 +113,11 @@ pub struct CompareRow {
     pub norms: ErrorNorms,
     /// Budget residual at the end.
     pub mass_error: f64,
-    /// Numerical diffusivity (x, y), m2/s: moment growth minus the physical K.
+    /// Numerical diffusivity (x, y), m2/s: moment growth minus the physical K; only where the
+    /// moment method is valid.
     pub k_numerical: Option<(f64, f64)>,
+    /// Why `k_numerical` is not given, when it is not.
+    pub k_numerical_reason: Option<String>,
     /// Wall seconds of the marching.
     pub seconds: f64,
     /// Warnings about the numerical choices of this run.
@@ -287,8 +290,41 @@ pub fn compare(
         .iter()
         .zip(&records)
         .map(|((label, l, t), rec)| {
-            let k_numerical = match rec.moments {
-                (Some(a), Some(b)) if scn.run.end > 0.0 => {
+            // The moment method measures diffusion only for one release spreading freely in
+            // open water, by a scheme that does not oscillate.
+            let (lo, hi) = rec
+                .field
+                .iter()
+                .zip(&rec.wet)
+                .filter(|(_, &w)| w)
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), (&c, _)| (a.min(c), b.max(c)));
+            // Centroid +- 2 standard deviations within the grid (97.7% of a Gaussian's mass
+            // on each axis).
+            let inside = |m: &crate::diagnostics::moments::Moments| {
+                let (sx, sy) = (2.0 * m.var_x.sqrt(), 2.0 * m.var_y.sqrt());
+                m.x - sx >= grid.x0 && m.x + sx <= grid.x0 + grid.lx() && m.y - sy >= grid.y0 && m.y + sy <= grid.y0 + grid.ly()
+            };
+            let reason = crate::run::summary::single_release_refusal(scn)
+                .or_else(|| {
+                    scn.model
+                        .mask
+                        .as_ref()
+                        .is_some_and(|m| m.has_land())
+                        .then(|| "land in the domain stops and reflects the plume, so its variance growth is not diffusion".to_string())
+                })
+                .or_else(|| {
+                    (lo < -1e-6 * hi.abs()).then(|| {
+                        format!("the field oscillates (min {lo:.3e}): the variance growth of an oscillating field is not diffusion")
+                    })
+                })
+                .or_else(|| match rec.moments {
+                    (Some(a), Some(b)) if scn.run.end > 0.0 => {
+                        (!(inside(&a) && inside(&b))).then(|| "the plume reaches a side of the grid".to_string())
+                    }
+                    _ => Some("no plume to measure".to_string()),
+                });
+            let k_numerical = match (rec.moments, &reason) {
+                ((Some(a), Some(b)), None) => {
                     let (ex, ey) = effective_diffusivity(&a, &b, scn.run.end);
                     Some((ex - kx, ey - ky))
                 }
@@ -301,6 +337,7 @@ pub fn compare(
                 norms: error_norms(&rec.field, &reference_field, Some(&wet)),
                 mass_error: rec.mass_error,
                 k_numerical,
+                k_numerical_reason: reason,
                 seconds: rec.seconds,
                 warnings: rec.warnings.clone(),
             }

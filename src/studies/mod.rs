@@ -54,7 +54,8 @@ pub enum StudyError {
 pub struct ReceptorTrace {
     /// Receptor name.
     pub name: String,
-    /// Largest sampled concentration.
+    /// Largest sampled concentration after the start (the initial state is not a result of the
+    /// run, so a receptor at the initial peak does not report it).
     pub peak: f64,
     /// Time of the peak, s.
     pub peak_time: f64,
@@ -184,7 +185,7 @@ pub fn run_scenario(scn: &Scenario, label: &str) -> Result<RunRecord, StudyError
         for (k, (r, tr)) in scn.receptors.iter().zip(traces.iter_mut()).enumerate() {
             let c = sample(&grid, &sim.model.mask, &sim.state.c, r.at.0, r.at.1).unwrap_or(f64::NAN);
             let t = sim.state.t;
-            if c > tr.peak {
+            if !first && c > tr.peak {
                 tr.peak = c;
                 tr.peak_time = t;
             }
@@ -284,6 +285,20 @@ pub fn memory_budget() -> u64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Regression: a receptor at the initial peak reported the initial value as its peak at
+    /// t = 0, so `converge` saw the same number on every grid (observed order 1.000 exactly).
+    #[test]
+    fn receptor_peaks_exclude_the_initial_state() {
+        let text = crate::scenario::example("rotating-cone").unwrap();
+        let sets = ["receptor[0].at=[16.0,24.0]".to_string(), "run.end=30".to_string()];
+        let scn = crate::scenario::parse(text, std::path::Path::new("x.toml"), &sets).unwrap();
+        let initial = scn.initial.value_at(16.0, 24.0);
+        let rec = run_scenario(&scn, "test").unwrap();
+        let tr = &rec.receptors[0];
+        assert!(tr.peak_time > 0.0, "peak at t = {}", tr.peak_time);
+        assert!(tr.peak < initial, "peak {} equals the initial {initial}", tr.peak);
+    }
 
     #[test]
     fn restriction_averages_water_cells() {
