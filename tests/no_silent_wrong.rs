@@ -1,10 +1,11 @@
 //! Regression tests through the real binary for inputs that once panicked or gave a silent
-//! wrong answer: colour ranges too narrow to draw, and `tinct gci` with non-finite values or
-//! grids out of order.
+//! wrong answer: colour ranges too narrow to draw, `tinct gci` with non-finite values or grids
+//! out of order, and `receptors.csv` ignoring `run.log_every`.
 
 mod common;
 
 use common::{root, tinct};
+use std::path::Path;
 use std::process::Output;
 
 fn text(o: &Output) -> String {
@@ -118,4 +119,78 @@ fn gci_refuses_non_finite_values_and_grids_out_of_order() {
         dir.path(),
     );
     assert!(o.status.success() && text(&o).contains("monotonic"), "{}", text(&o));
+}
+
+fn csv_rows(path: &Path) -> Vec<Vec<f64>> {
+    let mut r = csv::Reader::from_path(path).unwrap();
+    r.records()
+        .map(|rec| rec.unwrap().iter().map(|v| v.parse::<f64>().unwrap()).collect())
+        .collect()
+}
+
+fn receptor_peaks(dir: &Path) -> Vec<(f64, f64, Option<f64>, Option<f64>)> {
+    let text = std::fs::read_to_string(dir.join("summary.json")).unwrap();
+    let v: serde_json::Value = serde_json::from_str(&text).unwrap();
+    v["receptors"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|r| {
+            (
+                r["peak"].as_f64().unwrap(),
+                r["peak_time"].as_f64().unwrap(),
+                r["arrival_time"].as_f64(),
+                r["time_above_threshold"].as_f64(),
+            )
+        })
+        .collect()
+}
+
+#[test]
+fn receptors_csv_follows_log_every_and_the_statistics_use_every_step() {
+    // Worked by hand: before the fix receptors.csv had a row after every step whatever
+    // run.log_every said.
+    let dir = tempfile::tempdir().unwrap();
+    let puff = scenario("gaussian-puff.toml");
+    let run = |log_every: &str, out: &str| {
+        let o = tinct(
+            &[
+                "run",
+                &puff,
+                "--out",
+                out,
+                "--quiet",
+                "--set",
+                &format!("run.log_every={log_every}"),
+            ],
+            dir.path(),
+        );
+        assert!(o.status.success(), "{}", text(&o));
+        dir.path().join(out).join("gaussian-puff")
+    };
+    let coarse = run("10", "every10");
+    let fine = run("1", "every1");
+    let steps = csv_rows(&fine.join("budget.csv")).len() - 1;
+    let budget = csv_rows(&coarse.join("budget.csv"));
+    let receptors = csv_rows(&coarse.join("receptors.csv"));
+    assert_eq!(receptors.len(), budget.len());
+    assert!(
+        receptors.len() <= steps / 10 + 14,
+        "{} rows for {steps} steps",
+        receptors.len()
+    );
+    assert!(
+        receptors.len() >= steps / 10,
+        "{} rows for {steps} steps",
+        receptors.len()
+    );
+    // The same times as the budget rows, the first and the last included.
+    for (r, b) in receptors.iter().zip(&budget) {
+        assert_eq!(r[0], b[0]);
+    }
+    assert_eq!(receptors[0][0], 0.0);
+    assert_eq!(receptors.last().unwrap()[0], 7200.0);
+    assert_eq!(csv_rows(&fine.join("receptors.csv")).len(), steps + 1);
+    // Peaks, peak times, arrival and time above threshold do not depend on the log interval.
+    assert_eq!(receptor_peaks(&coarse), receptor_peaks(&fine));
 }
