@@ -1,6 +1,7 @@
 //! Regression tests through the real binary for inputs that once panicked or gave a silent
 //! wrong answer: colour ranges too narrow to draw, `tinct gci` with non-finite values or grids
-//! out of order, and `receptors.csv` ignoring `run.log_every`.
+//! out of order, `receptors.csv` ignoring `run.log_every`, and `tinct run --help` saying what
+//! `--out` is relative to.
 
 mod common;
 
@@ -193,4 +194,14 @@ fn receptors_csv_follows_log_every_and_the_statistics_use_every_step() {
     assert_eq!(csv_rows(&fine.join("receptors.csv")).len(), steps + 1);
     // Peaks, peak times, arrival and time above threshold do not depend on the log interval.
     assert_eq!(receptor_peaks(&coarse), receptor_peaks(&fine));
+}
+
+#[test]
+fn run_help_says_what_out_is_relative_to() {
+    let dir = tempfile::tempdir().unwrap();
+    let o = tinct(&["run", "--help"], dir.path());
+    let out = text(&o);
+    assert!(o.status.success(), "{out}");
+    assert!(out.contains("working directory"), "{out}");
+    assert!(out.contains("relative to the scenario file"), "{out}");
 }
