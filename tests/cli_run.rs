@@ -92,7 +92,8 @@ fn every_shipped_scenario_runs_and_writes_every_output() {
             assert!(r[8].abs() < 1e-12, "{name}: residual {}", r[8]);
         }
 
-        // summary.json parses; receptor peaks match receptors.csv; the caution is there.
+        // summary.json parses; receptor peaks agree with receptors.csv (the summary's come from
+        // every step, the file's rows from the logged steps only); the caution is there.
         let summary: serde_json::Value =
             serde_json::from_str(&std::fs::read_to_string(dir.join("summary.json")).unwrap()).unwrap();
         assert_eq!(summary["status"], "completed");
@@ -108,11 +109,17 @@ fn every_shipped_scenario_runs_and_writes_every_output() {
                 .map(|r| (r[k + 1], r[0]))
                 .fold((f64::NEG_INFINITY, 0.0), |a, b| if b.0 > a.0 { b } else { a });
             let sp = rec["peak"].as_f64().unwrap();
+            let pt = rec["peak_time"].as_f64().unwrap();
             assert!(
-                (sp - peak).abs() <= 1e-12 * peak.abs().max(1e-300),
-                "{name}: peak {sp} vs csv {peak}"
+                sp >= peak - 1e-12 * peak.abs().max(1e-300),
+                "{name}: peak {sp} below the csv's {peak}"
             );
-            assert!((rec["peak_time"].as_f64().unwrap() - at).abs() <= 1e-9 * at.max(1.0));
+            if (sp - peak).abs() <= 1e-12 * peak.abs().max(1e-300) {
+                assert!(
+                    (pt - at).abs() <= 1e-9 * at.max(1.0),
+                    "{name}: peak time {pt} vs csv {at}"
+                );
+            }
         }
 
         // fields.nc reads back with the right shape, coordinates and CF attributes.

@@ -2,6 +2,7 @@
 //! printed as a small table.
 
 use super::{bad_input, Failure};
+use tinct::diagnostics::advice::sig;
 use tinct::diagnostics::gci::{gci, spacing_from_cells, GciParams};
 
 /// Arguments of `tinct gci`.
@@ -31,6 +32,68 @@ fn three(v: &[f64], what: &str) -> Result<[f64; 3], Failure> {
     <[f64; 3]>::try_from(v).map_err(|_| bad_input(format!("--{what}: expected exactly three numbers, got {}", v.len())))
 }
 
+/// The numbers of `--what` as a comma-separated list with at most 4 significant digits.
+fn listed(v: &[f64; 3]) -> String {
+    v.map(|x| sig(x, 4)).join(",")
+}
+
+/// Every number of `--what` must be finite, and positive when `positive`.
+fn check_numbers(v: &[f64; 3], what: &str, positive: bool) -> Result<(), Failure> {
+    for (k, &x) in v.iter().enumerate() {
+        let bad = if !x.is_finite() {
+            "is not a finite number"
+        } else if positive && x <= 0.0 {
+            "must be positive"
+        } else {
+            continue;
+        };
+        return Err(bad_input(format!(
+            "--{what} {}: number {} ({}) {bad}",
+            listed(v),
+            k + 1,
+            sig(x, 4)
+        )));
+    }
+    Ok(())
+}
+
+/// The grids must come finest first: spacings strictly growing, cell counts strictly falling.
+fn check_order(v: &[f64; 3], what: &str, growing: bool) -> Result<(), Failure> {
+    let ok = if growing {
+        v[0] < v[1] && v[1] < v[2]
+    } else {
+        v[0] > v[1] && v[1] > v[2]
+    };
+    if ok {
+        return Ok(());
+    }
+    let (rule, sorted) = if growing {
+        ("the spacings must grow strictly, h1 < h2 < h3", {
+            let mut s = *v;
+            s.sort_by(f64::total_cmp);
+            s
+        })
+    } else {
+        ("the cell counts must fall strictly, N1 > N2 > N3", {
+            let mut s = *v;
+            s.sort_by(|a, b| b.total_cmp(a));
+            s
+        })
+    };
+    let hint = if sorted[0] != sorted[1] && sorted[1] != sorted[2] {
+        format!(
+            " (e.g. --{what} {}, with --values in the same grid order)",
+            listed(&sorted)
+        )
+    } else {
+        " (three different grids are needed)".to_string()
+    };
+    Err(bad_input(format!(
+        "--{what} {}: the grids must be listed finest first: {rule}{hint}",
+        listed(v)
+    )))
+}
+
 fn pct(v: Option<f64>) -> String {
     v.map_or_else(|| "-".into(), |x| format!("{:.3}%", 100.0 * x))
 }
@@ -41,10 +104,17 @@ pub fn main(a: GciArgs) -> Result<(), Failure> {
         return Err(bad_input(format!("--dims {}: must be 1, 2 or 3", a.dims)));
     }
     let f = three(&a.values, "values")?;
+    check_numbers(&f, "values", false)?;
     let h = if a.spacing.is_empty() {
-        three(&a.cells, "cells")?.map(|n| spacing_from_cells(n, a.dims))
+        let n = three(&a.cells, "cells")?;
+        check_numbers(&n, "cells", true)?;
+        check_order(&n, "cells", false)?;
+        n.map(|n| spacing_from_cells(n, a.dims))
     } else {
-        three(&a.spacing, "spacing")?
+        let h = three(&a.spacing, "spacing")?;
+        check_numbers(&h, "spacing", true)?;
+        check_order(&h, "spacing", true)?;
+        h
     };
     let g = gci(f, h, &GciParams::default());
     println!("grid  h             value");

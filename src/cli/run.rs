@@ -9,7 +9,9 @@ pub struct RunArgs {
     /// The scenario file (TOML).
     scenario: PathBuf,
     /// Output folder (default: the scenario's `output.dir`, else `out`); results go to
-    /// `<DIR>/<name>/`.
+    /// `<DIR>/<name>/`. `--out` and `output.dir` are relative to the working directory (the
+    /// folder tinct is started in), while the inputs a scenario names (`grid.land`,
+    /// `grid.depth`, `flow.path`) are relative to the scenario file.
     #[arg(long)]
     out: Option<PathBuf>,
     /// Override a scenario key, e.g. `--set scheme.convection=superbee` (repeatable).

@@ -168,8 +168,13 @@ fn ticks(lo: f64, hi: f64, scale: ColourScale) -> Vec<f64> {
         .map(|m| m * mag)
         .find(|&s| s >= raw)
         .unwrap_or(10.0 * mag);
-    let (a, b) = ((lo / step - 1e-9).ceil() as i64, (hi / step + 1e-9).floor() as i64);
-    (a..=b).map(|k| k as f64 * step).collect()
+    let (a, b) = ((lo / step - 1e-9).ceil(), (hi / step + 1e-9).floor());
+    // A span too narrow for a normal step (zero, subnormal) or too wide to divide (overflow):
+    // ticks at the two ends instead of an unbounded count.
+    if !(step.is_normal() && a.is_finite() && b.is_finite() && b - a < 12.0) {
+        return vec![lo, hi];
+    }
+    (a as i64..=b as i64).map(|k| k as f64 * step).collect()
 }
 
 fn tick_label(v: f64) -> String {

@@ -171,9 +171,11 @@ pub fn execute(
             let (it, corr) = s.last_iterations();
             iterations.0 += it;
             iterations.1 += corr;
-            receptors.record(st.t, st.last_dt, &st.c);
+            // Statistics from every step; a CSV row only with a budget row.
+            receptors.sample(st.t, st.last_dt, &st.c);
             if st.step % log_every == 0 {
                 rows.push(s.budget_row());
+                receptors.keep_row(st.t, &st.c);
             }
             progress(Progress {
                 t: st.t,
@@ -185,11 +187,13 @@ pub fn execute(
         });
         if let Err(e) = res {
             rows.push(sim.budget_row());
+            receptors.keep_row(sim.state.t, &sim.state.c);
             failure = Some(e);
             break;
         }
         if rows.last().map(|r| r.step) != Some(sim.state.step) {
             rows.push(sim.budget_row());
+            receptors.keep_row(sim.state.t, &sim.state.c);
         }
         write_frame(&sim, k, &mut fields)?;
         plume.observe(&grid, sim.state.t, &sim.field(), &wet);

@@ -1,5 +1,6 @@
 //! Receptor time series: the concentration of the cell holding each receptor, sampled after
-//! every step, with peak, arrival and time-above-threshold statistics.
+//! every step for the peak, arrival and time-above-threshold statistics, and kept as a row of
+//! `receptors.csv` only at the log interval (the rows of `budget.csv`).
 
 use crate::grid::Grid;
 
@@ -56,12 +57,25 @@ impl ReceptorLog {
         })
     }
 
-    /// Samples the padded field `c` at time `t`, the end of a step of `dt` (0 for the start).
+    /// Samples the padded field `c` at time `t`, the end of a step of `dt` (0 for the start),
+    /// into the statistics and keeps it as a row of `receptors.csv`.
     pub fn record(&mut self, t: f64, dt: f64, c: &[f64]) {
+        self.sample(t, dt, c);
+        self.keep_row(t, c);
+    }
+
+    /// Keeps the padded field `c` at time `t` as a row of `receptors.csv` (the statistics are
+    /// not touched: [`sample`](Self::sample) every step for those).
+    pub fn keep_row(&mut self, t: f64, c: &[f64]) {
         self.rows.push(t);
+        self.rows.extend(self.cells.iter().map(|&p| c[p]));
+    }
+
+    /// Samples the padded field `c` at time `t`, the end of a step of `dt` (0 for the start),
+    /// into the peak, arrival and time-above-threshold statistics only (no `receptors.csv` row).
+    pub fn sample(&mut self, t: f64, dt: f64, c: &[f64]) {
         for (s, &p) in self.stats.iter_mut().zip(&self.cells) {
             let v = c[p];
-            self.rows.push(v);
             if v > s.peak {
                 s.peak = v;
                 s.peak_time = t;
@@ -138,5 +152,27 @@ mod tests {
         assert!(csv.starts_with("time,\"beach, north\"\n0e0,0e0\n"), "{csv}");
         assert_eq!(csv.lines().count(), 7);
         assert!(ReceptorLog::new(&g, &[("out".into(), (9.0, 1.0), None)]).is_none());
+    }
+
+    #[test]
+    fn samples_without_rows_count_in_the_statistics() {
+        // Worked by hand: the peak 0.9 at t = 30 falls between the kept rows at t = 0 and 50.
+        let g = Grid::new(4, 4, 1.0, 1.0, 0.0, 0.0).unwrap();
+        let mut log = ReceptorLog::new(&g, &[("beach".into(), (1.5, 1.5), Some(0.5))]).unwrap();
+        let p = g.idx(1, 1);
+        let mut c = vec![0.0; g.padded_len()];
+        for (k, v) in [0.0, 0.2, 0.6, 0.9, 0.4, 0.7].into_iter().enumerate() {
+            c[p] = v;
+            let t = k as f64 * 10.0;
+            if k % 5 == 0 {
+                log.record(t, if k == 0 { 0.0 } else { 10.0 }, &c);
+            } else {
+                log.sample(t, 10.0, &c);
+            }
+        }
+        let s = &log.stats()[0];
+        assert_eq!((s.peak, s.peak_time, s.arrival_time), (0.9, 30.0, Some(20.0)));
+        assert_eq!(s.time_above_threshold, Some(30.0));
+        assert_eq!(log.csv(), "time,beach\n0e0,0e0\n5e1,7e-1\n");
     }
 }

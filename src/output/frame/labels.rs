@@ -125,14 +125,24 @@ fn single_tick(v: f64) -> Vec<(f64, String)> {
     vec![(v, label.into_iter().next().unwrap_or_default())]
 }
 
+/// Most ticks a linear bar ever gets (the step search aims at 3 to 5).
+const MAX_LINEAR_TICKS: f64 = 8.0;
+
 /// "Nice" ticks (1, 2 or 5 times a power of ten, 2.5 as a fallback),
 /// preferring 3 to 5 ticks.
+///
+/// A span too narrow for a normal step (zero, subnormal: `[0, 5e-324]`) or one the step
+/// search cannot divide gets ticks at its two ends instead, so no range can ask for an
+/// unbounded number of ticks.
 pub(super) fn linear_ticks(lo: f64, hi: f64) -> Vec<(f64, String)> {
     let span = hi - lo;
     if !(span.is_finite() && span > 0.0) {
         return single_tick(lo);
     }
     let mag = 10f64.powf((span / 4.0).log10().floor());
+    if !mag.is_normal() {
+        return end_ticks(lo, hi);
+    }
     let count = |step: f64| ((hi / step).floor() - (lo / step).ceil() + 1.0).max(0.0);
     let candidates = [1.0, 2.0, 5.0, 10.0, 20.0, 50.0, 2.5, 25.0].map(|m| m * mag);
     let step = candidates
@@ -141,9 +151,19 @@ pub(super) fn linear_ticks(lo: f64, hi: f64) -> Vec<(f64, String)> {
         .find(|&s| (3.0..=5.0).contains(&count(s)))
         .or_else(|| candidates.iter().copied().find(|&s| count(s) <= 5.0))
         .unwrap_or(span);
-    let first = (lo / step).ceil() as i64;
-    let last = (hi / step).floor() as i64;
-    let vals: Vec<f64> = (first..=last).map(|k| k as f64 * step).collect();
+    let (first, last) = ((lo / step).ceil(), (hi / step).floor());
+    if !(step.is_normal() && first.is_finite() && last.is_finite() && last - first < MAX_LINEAR_TICKS) {
+        return end_ticks(lo, hi);
+    }
+    let vals: Vec<f64> = (first as i64..=last as i64).map(|k| k as f64 * step).collect();
     let labels = format_ticks(&vals, |_| step);
+    vals.into_iter().zip(labels).collect()
+}
+
+/// Ticks at the two ends of a range `lo < hi`, labelled to the resolution of the span.
+fn end_ticks(lo: f64, hi: f64) -> Vec<(f64, String)> {
+    let vals = [lo, hi];
+    let span = hi - lo;
+    let labels = format_ticks(&vals, |_| span);
     vals.into_iter().zip(labels).collect()
 }

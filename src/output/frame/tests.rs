@@ -286,3 +286,20 @@ fn render_timing() {
         println!("render {n}x{n}: median {:.1} ms ({times:?})", times[1] * 1e3);
     }
 }
+
+#[test]
+fn ticks_of_a_subnormal_or_huge_span_stay_few() {
+    // Worked by hand: the span 5e-324 once gave a tick step of 0 and an unbounded tick count.
+    let t = linear_ticks(0.0, 5e-324);
+    assert_eq!(t.iter().map(|(v, _)| *v).collect::<Vec<_>>(), vec![0.0, 5e-324]);
+    assert!(t.iter().all(|(_, l)| !l.is_empty()), "{t:?}");
+    for (lo, hi) in [
+        (1e-310, 2e-310),
+        (-1e300, 1e300),
+        (-1e308, 1e308),
+        (1e300, 1e300 * (1.0 + 1e-15)),
+    ] {
+        let n = ticks(lo, hi, ColourScale::Linear).len();
+        assert!((1..=8).contains(&n), "[{lo}, {hi}]: {n} ticks");
+    }
+}

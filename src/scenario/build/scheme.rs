@@ -4,6 +4,7 @@
 use super::super::reader::{check, suggestion, Problems, Section};
 use super::super::{OutputSettings, RunSettings};
 use super::{optional_table, positive, required_table, MAX_FRAMES, OUTPUT, RUN, SCHEME};
+use crate::diagnostics::advice::sig;
 use crate::ops::limiter::Limiter;
 use crate::output::colour::ColourScale;
 use crate::step::{Scheme, TimeScheme};
@@ -148,15 +149,36 @@ pub(super) fn output_section(root: Section, p: &mut Problems) -> Option<OutputSe
     };
     let range = s.pair("range", p);
     if let Some((lo, hi)) = range {
+        let span = hi - lo;
         if lo >= hi {
             p.add(
                 "output.range",
-                format!("[{lo}, {hi}] is not allowed: must be [lo, hi] with lo < hi"),
+                format!(
+                    "[{}, {}] is not allowed: must be [lo, hi] with lo < hi",
+                    sig(lo, 4),
+                    sig(hi, 4)
+                ),
+            );
+        } else if !span.is_normal() {
+            // Too narrow (subnormal: no colour bar can be divided) or too wide (overflow).
+            p.add(
+                "output.range",
+                format!(
+                    "[{}, {}] is not allowed: hi - lo must lie between {} and {} (a finite, \
+                     drawable width); widen the range, or omit it to follow the data",
+                    sig(lo, 4),
+                    sig(hi, 4),
+                    sig(f64::MIN_POSITIVE, 4),
+                    sig(f64::MAX, 4)
+                ),
             );
         } else if colour == ColourScale::Log && lo <= 0.0 {
             p.add(
                 "output.range[0]",
-                format!("{lo} is not allowed with colour = \"log\": the low end must be > 0"),
+                format!(
+                    "{} is not allowed with colour = \"log\": the low end must be > 0",
+                    sig(lo, 4)
+                ),
             );
         }
     }
