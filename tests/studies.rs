@@ -84,7 +84,19 @@ fn read_metrics(path: &Path) -> Vec<(String, Vec<f64>)> {
     r.records()
         .map(|rec| {
             let rec = rec.unwrap();
-            let vals = rec.iter().skip(1).take(9).map(|v| v.parse::<f64>().unwrap()).collect();
+            // An empty field (k_numerical where the moment method does not hold) reads as NaN.
+            let vals = rec
+                .iter()
+                .skip(1)
+                .take(9)
+                .map(|v| {
+                    if v.is_empty() {
+                        f64::NAN
+                    } else {
+                        v.parse::<f64>().unwrap()
+                    }
+                })
+                .collect();
             (rec[0].to_string(), vals)
         })
         .collect()
