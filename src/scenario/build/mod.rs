@@ -5,10 +5,12 @@
 //! This file holds the entry point [`parse`], the schema of allowed keys ([`schema`]) and the
 //! helpers shared by the section readers; each section is read in its own file: `grid.rs`
 //! (`[grid]`), `tracer.rs` (`[tracer]`), `flow.rs` (`[flow]`, `[boundary]`), `sources.rs`
-//! (`[initial]`, `[[source]]`, `[[receptor]]`) and `scheme.rs` (`[scheme]`, `[run]`, `[output]`).
+//! (`[initial]`, `[[source]]`, `[[receptor]]`) and `scheme.rs` (`[scheme]`, `[run]`, `[output]`);
+//! `limits.rs` holds the checks of sizes across sections (amounts that would overflow).
 
 mod flow;
 mod grid;
+mod limits;
 mod scheme;
 mod sources;
 mod tracer;
@@ -167,7 +169,10 @@ pub(super) fn parse(text: &str, path: &Path, sets: &[String], allow_unstable: bo
                 boundaries,
                 sources,
             };
-            engine_checks(&model, &initial, &scheme, &mut p);
+            limits::amounts(&model, &initial, run.end, &mut p);
+            if p.len() == 0 {
+                engine_checks(&model, &initial, &scheme, &mut p);
+            }
             Some(Scenario {
                 name,
                 path: path.to_path_buf(),
