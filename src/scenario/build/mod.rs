@@ -22,6 +22,7 @@ use self::sources::{initial_section, receptor_section, source_section};
 use self::tracer::tracer_section;
 use super::reader::{check, type_name, Problems, Section};
 use super::{overrides, Problem, Scenario};
+use crate::diagnostics::advice::sig;
 use crate::error::ModelError;
 use crate::grid::{Grid, Mask};
 use crate::initial::Initial;
@@ -170,6 +171,7 @@ pub(super) fn parse(text: &str, path: &Path, sets: &[String], allow_unstable: bo
                 sources,
             };
             limits::amounts(&model, &initial, run.end, &mut p);
+            limits::initial_on_grid(&initial, &model.grid, &mut p);
             if p.len() == 0 {
                 engine_checks(&model, &initial, &scheme, &mut p);
             }
@@ -243,11 +245,23 @@ fn engine_checks(spec: &ModelSpec, initial: &Initial, scheme: &Scheme, p: &mut P
         p.0.push(engine_problem(&e));
     }
     match Model::new(spec.clone()) {
-        Ok(model) => {
-            if let Err(e) = max_step(&model, scheme) {
-                p.0.push(engine_problem(&e));
+        Ok(model) => match max_step(&model, scheme) {
+            Err(e) => p.0.push(engine_problem(&e)),
+            Ok(dt) => {
+                // Fewer than two steps per tidal period cannot represent the cycle at all (it
+                // aliases): most likely hours typed as seconds.
+                if let Some(tide) = spec.flow.tide.filter(|t| t.period < 2.0 * dt) {
+                    p.add(
+                        "flow.tide.period",
+                        format!(
+                            "{} s is shorter than two time steps (dt = {} s): the tide cannot be resolved; give the period in seconds (12.42 h = 44712 s) or a smaller scheme.dt",
+                            sig(tide.period, 4),
+                            sig(dt, 4)
+                        ),
+                    );
+                }
             }
-        }
+        },
         Err(e) => p.0.push(engine_problem(&e)),
     }
 }
@@ -352,13 +366,17 @@ fn check_point(key: &str, at: (f64, f64), grid: &GridOut, p: &mut Problems) {
         None => p.add(
             key,
             format!(
-                "({}, {}) m is outside the grid (x from {} to {}, y from {} to {})",
-                at.0,
-                at.1,
-                g.x0,
-                g.x0 + g.lx(),
-                g.y0,
-                g.y0 + g.ly()
+                "({}, {}) m is outside the grid: x from {} to {} m (grid.nx = {} cells of grid.dx = {} m), y from {} to {} m (grid.ny = {} cells of grid.dy = {} m)",
+                sig(at.0, 4),
+                sig(at.1, 4),
+                sig(g.x0, 4),
+                sig(g.x0 + g.lx(), 4),
+                g.nx,
+                sig(g.dx, 4),
+                sig(g.y0, 4),
+                sig(g.y0 + g.ly(), 4),
+                g.ny,
+                sig(g.dy, 4)
             ),
         ),
         Some((i, j)) => {
