@@ -73,6 +73,29 @@ pub enum RunError {
         /// The most likely cause, in words.
         cause: String,
     },
+    /// A mass, budget total, residual or field value that is not a finite number (the
+    /// arithmetic overflowed): the results would be meaningless.
+    #[error(
+        "the run failed at step {step}, t = {time} s: the {quantity} is {value}, not a finite number (cell i = {i}, j = {j} holds {cell_value}); likely cause: {cause}"
+    )]
+    NonFinite {
+        /// Step number (0 for the initial state).
+        step: u64,
+        /// Simulated time, s.
+        time: f64,
+        /// The quantity, e.g. `mass` or `budget residual`.
+        quantity: String,
+        /// Its value.
+        value: f64,
+        /// Column of the cell that holds the first non-finite or the largest value.
+        i: usize,
+        /// Row of that cell.
+        j: usize,
+        /// That cell's value.
+        cell_value: f64,
+        /// The most likely cause, in words.
+        cause: String,
+    },
     /// An implicit step could not be solved to its tolerance.
     #[error("the {what} did not converge in step {step} (from t = {time} s): {detail}; advice: {advice}")]
     NotConverged {

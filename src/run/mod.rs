@@ -156,9 +156,11 @@ pub fn execute(
 
     let end = scn.run.end;
     let log_every = scn.run.log_every.max(1);
-    let mut failure: Option<RunError> = None;
+    // A mass, residual or value that is not finite fails the run (from the initial state on).
+    let mut failure: Option<RunError> = sim.check_row(&rows[0]).err();
     let mut written = 1;
-    for k in 1..=n_frames {
+    for k in (1..=n_frames).take_while(|_| failure.is_none()) {
+        let mut bad_row: Option<RunError> = None;
         let target = if k == n_frames {
             end
         } else {
@@ -174,8 +176,13 @@ pub fn execute(
             // Statistics from every step; a CSV row only with a budget row.
             receptors.sample(st.t, st.last_dt, &st.c);
             if st.step % log_every == 0 {
-                rows.push(s.budget_row());
+                let row = s.budget_row();
+                rows.push(row);
                 receptors.keep_row(st.t, &st.c);
+                if let Err(e) = s.check_row(&row) {
+                    bad_row = Some(e);
+                    return ControlFlow::Break(());
+                }
             }
             progress(Progress {
                 t: st.t,
@@ -185,6 +192,10 @@ pub fn execute(
             });
             ControlFlow::Continue(())
         });
+        if let Some(e) = bad_row {
+            failure = Some(e);
+            break;
+        }
         if let Err(e) = res {
             rows.push(sim.budget_row());
             receptors.keep_row(sim.state.t, &sim.state.c);
@@ -194,6 +205,10 @@ pub fn execute(
         if rows.last().map(|r| r.step) != Some(sim.state.step) {
             rows.push(sim.budget_row());
             receptors.keep_row(sim.state.t, &sim.state.c);
+        }
+        if let Some(e) = rows.last().and_then(|r| sim.check_row(r).err()) {
+            failure = Some(e);
+            break;
         }
         write_frame(&sim, k, &mut fields)?;
         plume.observe(&grid, sim.state.t, &sim.field(), &wet);

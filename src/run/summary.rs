@@ -277,7 +277,7 @@ impl RunSummary {
             scenario: scn.name.clone(),
             status: match failure {
                 None => "completed",
-                Some(RunError::Diverged { .. }) => "diverged",
+                Some(RunError::Diverged { .. } | RunError::NonFinite { .. }) => "diverged",
                 Some(_) => "not_converged",
             }
             .into(),
@@ -294,7 +294,14 @@ impl RunSummary {
             } else {
                 0.0
             },
-            max_abs_residual: rows.iter().map(|r| r.residual.abs()).fold(0.0, f64::max),
+            // NaN-aware: a NaN residual makes the maximum NaN (f64::max would drop it).
+            max_abs_residual: rows.iter().map(|r| r.residual.abs()).fold(0.0, |a, r| {
+                if a.is_nan() || r.is_nan() {
+                    f64::NAN
+                } else {
+                    a.max(r)
+                }
+            }),
             min_ever: rows.iter().map(|r| r.min).fold(f64::INFINITY, f64::min),
             max_ever: rows.iter().map(|r| r.max).fold(f64::NEG_INFINITY, f64::max),
             initial_mass: sim.budget.mass0,

@@ -175,7 +175,10 @@ pub(super) fn write(s: &Scenario) -> String {
     line(format!("convection = {}", text(s.scheme.limiter.name())));
     line(format!("time = {}", text(s.scheme.time.name())));
     line(format!("stages = {}", s.scheme.stages));
-    line(format!("courant = {}", num(s.scheme.courant)));
+    // With a fixed step the Courant target is not used (both keys together are refused).
+    if s.scheme.dt.is_none() {
+        line(format!("courant = {}", num(s.scheme.courant)));
+    }
     if s.scheme.time.is_implicit() {
         match s.scheme.theta {
             Some(th) => line(format!("theta = {}", num(th))),

@@ -624,20 +624,7 @@ impl Simulation {
 
     /// Builds the divergence report: the worst cell and the likely cause.
     fn diverged(&self) -> RunError {
-        let g = &self.model.grid;
-        let (mut wi, mut wj, mut wv) = (0, 0, 0.0f64);
-        'scan: for j in 0..g.ny {
-            for i in 0..g.nx {
-                let v = self.state.c[g.idx(i as isize, j as isize)];
-                if !v.is_finite() {
-                    (wi, wj, wv) = (i, j, v);
-                    break 'scan;
-                }
-                if v.abs() > wv.abs() {
-                    (wi, wj, wv) = (i, j, v);
-                }
-            }
-        }
+        let (wi, wj, wv) = self.worst_cell();
         let dt = self.state.last_dt;
         let lim = StepLimits::of(&self.model);
         let c = dt / lim.convection;
@@ -661,6 +648,58 @@ impl Simulation {
             value: wv,
             cause,
         }
+    }
+
+    /// The first cell holding a non-finite value, else the one with the largest magnitude.
+    fn worst_cell(&self) -> (usize, usize, f64) {
+        let g = &self.model.grid;
+        let (mut wi, mut wj, mut wv) = (0, 0, 0.0f64);
+        for j in 0..g.ny {
+            for i in 0..g.nx {
+                let v = self.state.c[g.idx(i as isize, j as isize)];
+                if !v.is_finite() {
+                    return (i, j, v);
+                }
+                if v.abs() > wv.abs() {
+                    (wi, wj, wv) = (i, j, v);
+                }
+            }
+        }
+        (wi, wj, wv)
+    }
+
+    /// Checks a budget row of this simulation: a mass, total, residual or extreme that is not
+    /// a finite number fails the run, naming the quantity, the step and the worst cell.
+    pub fn check_row(&self, row: &BudgetRow) -> Result<(), RunError> {
+        let quantities = [
+            ("mass", row.mass),
+            ("mass added by sources", row.added),
+            ("mass carried in", row.inflow),
+            ("mass carried out", row.outflow),
+            ("mass removed by decay", row.decayed),
+            ("budget residual", row.residual),
+            ("smallest concentration", row.min),
+            ("largest concentration", row.max),
+        ];
+        let Some((quantity, value)) = quantities.into_iter().find(|(_, v)| !v.is_finite()) else {
+            return Ok(());
+        };
+        let (i, j, cell_value) = self.worst_cell();
+        let cause = if cell_value.is_finite() {
+            "the concentrations are finite but their mass (concentration x depth x cell area, summed) overflows double precision: check the sizes of grid.depth, grid.dx, grid.dy, the initial field and the source masses"
+        } else {
+            "a concentration overflowed: check the sizes of the initial field and the source masses against grid.depth, grid.dx and grid.dy, and the time step"
+        };
+        Err(RunError::NonFinite {
+            step: row.step,
+            time: row.time,
+            quantity: quantity.into(),
+            value,
+            i,
+            j,
+            cell_value,
+            cause: cause.into(),
+        })
     }
 
     /// The mass in the domain now.

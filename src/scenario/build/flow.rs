@@ -2,7 +2,8 @@
 //! kind of each side, with the periodic pairing check).
 
 use super::super::reader::{check, list, suggestion, type_name, Problems, Section};
-use super::{optional_table, positive, GridOut, FLOW_KINDS, OPENING, SIDE, SIDES, TIDE};
+use super::limits::{within, MIN_PERIOD};
+use super::{optional_table, GridOut, FLOW_KINDS, OPENING, SIDE, SIDES, TIDE};
 use crate::diagnostics::advice::sig;
 use crate::flow::file::FlowFile;
 use crate::flow::{FileFlow, FlowKind, FlowSpec, Opening, Tide};
@@ -56,9 +57,12 @@ pub(super) fn flow_section(
         "rotation" => {
             s.check_keys(&keys(&["centre", "period"]), &ctx, p);
             let centre = s.req_pair("centre", "the centre of rotation [x, y]", p);
-            let period = positive(
+            let period = within(
                 s.req_num("period", "the period of one turn in seconds", p),
                 "flow.period",
+                (MIN_PERIOD, f64::INFINITY),
+                "s",
+                "the period",
                 p,
             );
             FlowKind::Rotation {
@@ -68,9 +72,12 @@ pub(super) fn flow_section(
         }
         "swirl" => {
             s.check_keys(&keys(&["period", "speed"]), &ctx, p);
-            let period = positive(
+            let period = within(
                 s.req_num("period", "the reversal period in seconds", p),
                 "flow.period",
+                (MIN_PERIOD, f64::INFINITY),
+                "s",
+                "the period",
                 p,
             );
             let speed = if s.has("speed") { s.num("speed", p) } else { Some(1.0) };
@@ -143,9 +150,12 @@ pub(super) fn flow_section(
         Some(t) => {
             let ts = Section::new("flow.tide", t);
             ts.check_keys(TIDE, "in flow.tide", p);
-            let period = positive(
+            let period = within(
                 ts.req_num("period", "the tidal period in seconds", p),
                 "flow.tide.period",
+                (MIN_PERIOD, f64::INFINITY),
+                "s",
+                "the tidal period; 12.42 h = 44712 s",
                 p,
             );
             let phase = if ts.has("phase") { ts.num("phase", p) } else { Some(0.0) };

@@ -3,6 +3,7 @@
 
 use super::super::reader::{Problems, Section};
 use super::super::{depth, land};
+use super::limits::{within, CELL_SIZE, DEPTH, MAX_ORIGIN};
 use super::{engine_problem, positive, required_table, GridOut, GRID, MAX_SIDE};
 use crate::depth::Depth;
 use crate::grid::{Grid, Mask, MAX_CELLS};
@@ -39,8 +40,18 @@ pub(super) fn grid_section(root: Section, path: &Path, p: &mut Problems) -> Opti
             positive(Some(ly), "grid.size[1]", p)?,
         ))
     });
-    let dx = positive(s.num("dx", p), "grid.dx", p);
-    let dy = positive(s.num("dy", p), "grid.dy", p);
+    let cell = |key: &str, p: &mut Problems| {
+        within(
+            s.num(key, p),
+            &format!("grid.{key}"),
+            CELL_SIZE,
+            "m",
+            "the cell size",
+            p,
+        )
+    };
+    let dx = cell("dx", p);
+    let dy = cell("dy", p);
     if !s.has("size") && !s.has("dx") {
         p.add(
             "grid.dx",
@@ -48,7 +59,13 @@ pub(super) fn grid_section(root: Section, path: &Path, p: &mut Problems) -> Opti
         );
     }
     let origin = if s.has("origin") {
-        s.pair("origin", p)
+        let far = (-MAX_ORIGIN, MAX_ORIGIN);
+        let why = "the coordinates of the lower-left corner";
+        s.pair("origin", p).and_then(|(x0, y0)| {
+            let x0 = within(Some(x0), "grid.origin[0]", far, "m", why, p);
+            let y0 = within(Some(y0), "grid.origin[1]", far, "m", why, p);
+            Some((x0?, y0?))
+        })
     } else {
         Some((0.0, 0.0))
     };
@@ -59,7 +76,7 @@ pub(super) fn grid_section(root: Section, path: &Path, p: &mut Problems) -> Opti
             let joined = path.parent().unwrap_or(Path::new("")).join(rel);
             Some(DepthIn::File(std::path::absolute(&joined).unwrap_or(joined)))
         }
-        Some(_) => positive(s.num("depth", p), "grid.depth", p).map(DepthIn::Uniform),
+        Some(_) => within(s.num("depth", p), "grid.depth", DEPTH, "m", "the water depth", p).map(DepthIn::Uniform),
     };
     let depth_range = s.pair("depth_range", p);
     if s.has("depth_range") && !matches!(depth, Some(DepthIn::File(_))) {
@@ -70,6 +87,13 @@ pub(super) fn grid_section(root: Section, path: &Path, p: &mut Problems) -> Opti
     }
     let land = s.string("land", p);
     let (nx, ny) = (nx?, ny?);
+    if nx == 1 && ny == 1 {
+        p.add(
+            "grid.nx",
+            "nx = ny = 1 is a single cell, not a domain: nothing can move between cells; use at least 2 cells along one side (one cell across, ny = 1, is a 1D channel)",
+        );
+        return None;
+    }
     if nx.saturating_mul(ny) > MAX_CELLS as i64 {
         p.add(
             "grid",
@@ -82,7 +106,12 @@ pub(super) fn grid_section(root: Section, path: &Path, p: &mut Problems) -> Opti
     }
     let (nx, ny) = (nx as usize, ny as usize);
     let (dx, dy) = match size {
-        Some((lx, ly)) => (lx / nx as f64, ly / ny as f64),
+        Some((lx, ly)) => {
+            let why = "grid.size / grid.nx or grid.ny, the cell size";
+            let dx = within(Some(lx / nx as f64), "grid.size[0]", CELL_SIZE, "m", why, p);
+            let dy = within(Some(ly / ny as f64), "grid.size[1]", CELL_SIZE, "m", why, p);
+            (dx?, dy?)
+        }
         None => {
             let dx = dx?;
             (dx, if s.has("dy") { dy? } else { dx })

@@ -5,10 +5,12 @@
 //! This file holds the entry point [`parse`], the schema of allowed keys ([`schema`]) and the
 //! helpers shared by the section readers; each section is read in its own file: `grid.rs`
 //! (`[grid]`), `tracer.rs` (`[tracer]`), `flow.rs` (`[flow]`, `[boundary]`), `sources.rs`
-//! (`[initial]`, `[[source]]`, `[[receptor]]`) and `scheme.rs` (`[scheme]`, `[run]`, `[output]`).
+//! (`[initial]`, `[[source]]`, `[[receptor]]`) and `scheme.rs` (`[scheme]`, `[run]`, `[output]`);
+//! `limits.rs` holds the checks of sizes across sections (amounts that would overflow).
 
 mod flow;
 mod grid;
+mod limits;
 mod scheme;
 mod sources;
 mod tracer;
@@ -20,6 +22,7 @@ use self::sources::{initial_section, receptor_section, source_section};
 use self::tracer::tracer_section;
 use super::reader::{check, type_name, Problems, Section};
 use super::{overrides, Problem, Scenario};
+use crate::diagnostics::advice::sig;
 use crate::error::ModelError;
 use crate::grid::{Grid, Mask};
 use crate::initial::Initial;
@@ -167,7 +170,11 @@ pub(super) fn parse(text: &str, path: &Path, sets: &[String], allow_unstable: bo
                 boundaries,
                 sources,
             };
-            engine_checks(&model, &initial, &scheme, &mut p);
+            limits::amounts(&model, &initial, run.end, &mut p);
+            limits::initial_on_grid(&initial, &model.grid, &mut p);
+            if p.len() == 0 {
+                engine_checks(&model, &initial, &scheme, &mut p);
+            }
             Some(Scenario {
                 name,
                 path: path.to_path_buf(),
@@ -238,11 +245,23 @@ fn engine_checks(spec: &ModelSpec, initial: &Initial, scheme: &Scheme, p: &mut P
         p.0.push(engine_problem(&e));
     }
     match Model::new(spec.clone()) {
-        Ok(model) => {
-            if let Err(e) = max_step(&model, scheme) {
-                p.0.push(engine_problem(&e));
+        Ok(model) => match max_step(&model, scheme) {
+            Err(e) => p.0.push(engine_problem(&e)),
+            Ok(dt) => {
+                // Fewer than two steps per tidal period cannot represent the cycle at all (it
+                // aliases): most likely hours typed as seconds.
+                if let Some(tide) = spec.flow.tide.filter(|t| t.period < 2.0 * dt) {
+                    p.add(
+                        "flow.tide.period",
+                        format!(
+                            "{} s is shorter than two time steps (dt = {} s): the tide cannot be resolved; give the period in seconds (12.42 h = 44712 s) or a smaller scheme.dt",
+                            sig(tide.period, 4),
+                            sig(dt, 4)
+                        ),
+                    );
+                }
             }
-        }
+        },
         Err(e) => p.0.push(engine_problem(&e)),
     }
 }
@@ -347,13 +366,17 @@ fn check_point(key: &str, at: (f64, f64), grid: &GridOut, p: &mut Problems) {
         None => p.add(
             key,
             format!(
-                "({}, {}) m is outside the grid (x from {} to {}, y from {} to {})",
-                at.0,
-                at.1,
-                g.x0,
-                g.x0 + g.lx(),
-                g.y0,
-                g.y0 + g.ly()
+                "({}, {}) m is outside the grid: x from {} to {} m (grid.nx = {} cells of grid.dx = {} m), y from {} to {} m (grid.ny = {} cells of grid.dy = {} m)",
+                sig(at.0, 4),
+                sig(at.1, 4),
+                sig(g.x0, 4),
+                sig(g.x0 + g.lx(), 4),
+                g.nx,
+                sig(g.dx, 4),
+                sig(g.y0, 4),
+                sig(g.y0 + g.ly(), 4),
+                g.ny,
+                sig(g.dy, 4)
             ),
         ),
         Some((i, j)) => {

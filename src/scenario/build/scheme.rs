@@ -99,6 +99,13 @@ pub(super) fn scheme_section(root: Section, p: &mut Problems) -> Option<Scheme> 
             None => ok = false,
         }
     }
+    if s.has("dt") && s.has("courant") {
+        p.add(
+            "scheme.courant",
+            "scheme.dt is given too: a fixed dt replaces the automatic step from the Courant number, so one of them would be ignored; give scheme.dt or scheme.courant, not both",
+        );
+        ok = false;
+    }
     if s.has("dt") {
         match positive(s.num("dt", p), "scheme.dt", p) {
             Some(dt) => scheme.dt = Some(dt),

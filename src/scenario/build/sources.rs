@@ -85,11 +85,16 @@ pub(super) fn source_section(
 ) -> Option<Vec<SourceSpec>> {
     let items = table_array(root, "source", p)?;
     let mut out = Vec::new();
+    let mut names: Vec<String> = Vec::new();
     let before = p.len();
     for (label, t) in &items {
         let s = Section::new(label, t);
         s.check_keys(SOURCE, "in [[source]]", p);
         let name = s.string("name", p).map_or_else(|| label.clone(), str::to_string);
+        if let Some(k) = names.iter().position(|n| *n == name) {
+            p.add(s.key("name"), format!("\"{name}\" is already the name of source[{k}]"));
+        }
+        names.push(name.clone());
         let at = s.req_pair("at", "the release point [x, y]", p);
         if let (Some(at), Some(g)) = (at, grid) {
             check_point(&s.key("at"), at, g, p);

@@ -2,7 +2,8 @@
 
 use super::super::reader::{type_name, Problems, Section};
 use super::super::TracerInfo;
-use super::{non_negative, optional_table, positive, TRACER};
+use super::limits::{within, DIFFUSIVITY, MAX_DECAY_RATE, MIN_T90};
+use super::{optional_table, TRACER};
 use toml::{Table, Value};
 
 /// `[tracer]`: info, diffusivities and decay rate (defaults when bad; problems are recorded).
@@ -30,13 +31,29 @@ pub(super) fn tracer_section(root: Section, p: &mut Problems) -> (TracerInfo, f6
         None => {}
         Some(Value::Array(_)) => {
             if let Some((a, b)) = s.pair("diffusivity", p) {
-                kx = non_negative(Some(a), "tracer.diffusivity[0]", p).unwrap_or(0.0);
-                ky = non_negative(Some(b), "tracer.diffusivity[1]", p).unwrap_or(0.0);
+                kx = within(
+                    Some(a),
+                    "tracer.diffusivity[0]",
+                    DIFFUSIVITY,
+                    "m2/s",
+                    "the diffusivity",
+                    p,
+                )
+                .unwrap_or(0.0);
+                ky = within(
+                    Some(b),
+                    "tracer.diffusivity[1]",
+                    DIFFUSIVITY,
+                    "m2/s",
+                    "the diffusivity",
+                    p,
+                )
+                .unwrap_or(0.0);
             }
         }
         Some(v @ (Value::Integer(_) | Value::Float(_))) => {
             let k = super::super::reader::number(v, "tracer.diffusivity", p);
-            let k = non_negative(k, "tracer.diffusivity", p).unwrap_or(0.0);
+            let k = within(k, "tracer.diffusivity", DIFFUSIVITY, "m2/s", "the diffusivity", p).unwrap_or(0.0);
             (kx, ky) = (k, k);
         }
         Some(other) => p.add(
@@ -44,8 +61,22 @@ pub(super) fn tracer_section(root: Section, p: &mut Problems) -> (TracerInfo, f6
             format!("expected a number or [kx, ky] in m2/s, found {}", type_name(other)),
         ),
     }
-    let rate = non_negative(s.num("decay_rate", p), "tracer.decay_rate", p);
-    let t90 = positive(s.num("t90", p), "tracer.t90", p);
+    let rate = within(
+        s.num("decay_rate", p),
+        "tracer.decay_rate",
+        (0.0, MAX_DECAY_RATE),
+        "1/s",
+        "the first-order decay rate; at most ln 10 per second, a T90 of 1 s",
+        p,
+    );
+    let t90 = within(
+        s.num("t90", p),
+        "tracer.t90",
+        (MIN_T90, f64::INFINITY),
+        "s",
+        "the time for 90% to decay",
+        p,
+    );
     let decay = if s.has("decay_rate") && s.has("t90") {
         p.add(
             "tracer.t90",
