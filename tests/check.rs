@@ -325,3 +325,57 @@ fn advice_never_says_central_falls_back_to_upwind() {
         }
     }
 }
+
+#[test]
+fn implicit_limited_runs_say_they_are_bounded_only_to_the_correction_tolerance() {
+    // Regression: implicit superbee dipped below zero (-8e-6 on the rotating cone at Courant 2)
+    // with no word about it; check, the run and summary.json now state the bound.
+    let root = common::root();
+    let dir = tempfile::tempdir().unwrap();
+    let scn = root.join("scenarios/rotating-cone.toml");
+    let sets = [
+        "--set",
+        "scheme.time=implicit",
+        "--set",
+        "scheme.convection=superbee",
+        "--set",
+        "scheme.courant=2",
+    ];
+    let mut args = vec![
+        "run",
+        scn.to_str().unwrap(),
+        "--out",
+        "out",
+        "--quiet",
+        "--set",
+        "run.end=200",
+    ];
+    args.extend(sets);
+    let out = common::tinct(&args, dir.path());
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let summary = std::fs::read_to_string(dir.path().join("out/rotating-cone/summary.json")).unwrap();
+    assert!(summary.contains("correction tolerance"), "{summary}");
+    let mut args = vec!["check", scn.to_str().unwrap(), "--out", "out"];
+    args.extend(sets);
+    let text = String::from_utf8_lossy(&common::tinct(&args, dir.path()).stdout).to_string();
+    assert!(text.contains("correction tolerance"), "{text}");
+    // Upwind is bounded at any step: no such warning.
+    let text = String::from_utf8_lossy(
+        &common::tinct(
+            &[
+                "check",
+                scn.to_str().unwrap(),
+                "--out",
+                "out",
+                "--set",
+                "scheme.time=implicit",
+                "--set",
+                "scheme.convection=upwind",
+            ],
+            dir.path(),
+        )
+        .stdout,
+    )
+    .to_string();
+    assert!(!text.contains("correction tolerance"), "{text}");
+}
