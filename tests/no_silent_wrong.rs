@@ -205,3 +205,90 @@ fn run_help_says_what_out_is_relative_to() {
     assert!(out.contains("working directory"), "{out}");
     assert!(out.contains("relative to the scenario file"), "{out}");
 }
+
+#[test]
+fn more_frames_than_steps_are_refused_unless_asked() {
+    // Regression: run.frames = 10000 on a 738-step run forced 10,000 steps and 10,001 PNGs
+    // without a word.
+    let dir = tempfile::tempdir().unwrap();
+    let puff = scenario("gaussian-puff.toml");
+    let args = [
+        "run",
+        puff.as_str(),
+        "--out",
+        "out",
+        "--quiet",
+        "--set",
+        "run.end=200",
+        "--set",
+        "run.frames=40",
+    ];
+    let o = tinct(&args, dir.path());
+    assert_eq!(o.status.code(), Some(2), "{}", text(&o));
+    assert!(
+        text(&o).contains("run.frames") && text(&o).contains("--all-frames"),
+        "{}",
+        text(&o)
+    );
+    assert!(!dir.path().join("out").exists());
+    let mut asked = args.to_vec();
+    asked.push("--all-frames");
+    let o = tinct(&asked, dir.path());
+    assert_eq!(o.status.code(), Some(0), "{}", text(&o));
+    let frames = std::fs::read_dir(dir.path().join("out/gaussian-puff/frames"))
+        .unwrap()
+        .count();
+    assert_eq!(frames, 41);
+}
+
+#[test]
+fn a_long_run_announces_its_estimate_before_it_starts() {
+    // Regression: run.end = 1e12 started silently although check estimated weeks.
+    use std::io::{BufRead, BufReader};
+    let dir = tempfile::tempdir().unwrap();
+    let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_tinct"))
+        .args([
+            "run",
+            &scenario("gaussian-puff.toml"),
+            "--out",
+            "out",
+            "--set",
+            "run.end=1e9",
+        ])
+        .current_dir(dir.path())
+        .stderr(std::process::Stdio::piped())
+        .stdout(std::process::Stdio::null())
+        .spawn()
+        .unwrap();
+    let mut first = String::new();
+    BufReader::new(child.stderr.take().unwrap())
+        .read_line(&mut first)
+        .unwrap();
+    child.kill().unwrap();
+    child.wait().unwrap();
+    assert!(first.contains("will take about"), "{first}");
+}
+
+#[test]
+fn studies_check_their_output_folder_before_any_run() {
+    // Regression: compare and converge failed on an unwritable folder only after their runs.
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("blocker"), "a file, not a folder").unwrap();
+    let cone = scenario("rotating-cone.toml");
+    for args in [
+        vec![
+            "compare",
+            cone.as_str(),
+            "--schemes",
+            "upwind",
+            "--out",
+            "blocker/out",
+            "--quiet",
+        ],
+        vec!["converge", cone.as_str(), "--out", "blocker/out", "--quiet"],
+    ] {
+        let o = tinct(&args, dir.path());
+        assert_eq!(o.status.code(), Some(2), "{}", text(&o));
+        assert!(text(&o).contains("nothing was run"), "{}", text(&o));
+    }
+}

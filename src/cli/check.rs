@@ -72,7 +72,10 @@ const FILES: [&str; 6] = [
 /// Runs `tinct check`.
 pub fn main(a: CheckArgs) -> Result<(), Failure> {
     // Load with the step accepted whatever it is, so an unstable fixed step is reported on.
-    let options = LoadOptions { allow_unstable: true };
+    let options = LoadOptions {
+        allow_unstable: true,
+        many_frames: true,
+    };
     let scn = tinct::scenario::load_with(&a.scenario, &a.sets, options).map_err(|e| bad_input(e.to_string()))?;
     let model = scn
         .build_model()

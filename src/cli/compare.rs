@@ -1,7 +1,7 @@
 //! `tinct compare`: runs a scenario once per scheme and writes `<out>/<name>/compare/`
 //! (panel, profiles, metrics), then prints the metrics sorted by L1 error.
 
-use super::{bad_input, failed, parse_schemes, Failure};
+use super::{bad_input, failed, fmt_t, parse_schemes, Failure};
 use std::path::PathBuf;
 use tinct::ops::limiter::Limiter;
 use tinct::step::TimeScheme;
@@ -74,18 +74,42 @@ pub fn main(a: CompareArgs) -> Result<(), Failure> {
         section,
         memory: None,
     };
+    let dir = a
+        .out
+        .clone()
+        .unwrap_or_else(|| scn.output.dir.clone())
+        .join(&scn.name)
+        .join("compare");
+    tinct::output::atomic::ensure_writable(&dir)
+        .map_err(|e| bad_input(format!("the output folder cannot be written, so nothing was run: {e}")))?;
     let quiet = a.quiet;
+    if let Some(est) = tinct::diagnostics::regime::estimate_seconds(&scn) {
+        // One run per scheme and time scheme, plus a reference refined r times in x, y and t
+        // when there is no exact solution.
+        let runs = (opts.schemes.len() * opts.times.len().max(1)) as f64;
+        let r = opts.reference_refine as f64;
+        let reference = if tinct::studies::exact::exact_solution(&scn).is_none() {
+            r * r * r
+        } else {
+            0.0
+        };
+        let total = est * (runs + reference);
+        if total > tinct::diagnostics::regime::LONG_WORK_SECONDS && !quiet {
+            eprintln!(
+                "tinct: this comparison will take about {} of computing ({} run(s) of about {} each{}); Ctrl-C stops it",
+                fmt_t(total),
+                runs,
+                fmt_t(est),
+                if reference > 0.0 { format!(", and a reference refined {r} times") } else { String::new() }
+            );
+        }
+    }
     let on_done = move |label: &str| {
         if !quiet {
             eprintln!("tinct: finished {label}");
         }
     };
     let report = compare(&scn, &opts, &on_done).map_err(study_failure)?;
-    let dir = a
-        .out
-        .unwrap_or_else(|| scn.output.dir.clone())
-        .join(&scn.name)
-        .join("compare");
     let written = write_compare(&report, &dir).map_err(study_failure)?;
     println!("scenario {}: {}", report.scenario, report.reference.description);
     if let Some(src) = report.reference.source {

@@ -2,7 +2,7 @@
 //! three-grid results of Celik et al. (2008); writes `<out>/<name>/converge/`.
 
 use super::compare::study_failure;
-use super::{bad_input, Failure};
+use super::{bad_input, fmt_t, Failure};
 use std::path::PathBuf;
 use tinct::studies::converge::{converge, write_converge, ConvergeOptions};
 
@@ -46,18 +46,34 @@ pub fn main(a: ConvergeArgs) -> Result<(), Failure> {
         quantities: a.quantities,
         ..ConvergeOptions::default()
     };
+    let dir = a
+        .out
+        .clone()
+        .unwrap_or_else(|| scn.output.dir.clone())
+        .join(&scn.name)
+        .join("converge");
+    tinct::output::atomic::ensure_writable(&dir)
+        .map_err(|e| bad_input(format!("the output folder cannot be written, so nothing was run: {e}")))?;
     let quiet = a.quiet;
+    if let Some(est) = tinct::diagnostics::regime::estimate_seconds(&scn) {
+        // Level k has ratio^k times the cells in each direction and steps.
+        let r = (opts.ratio as f64).powi(3);
+        let total: f64 = (0..opts.levels).map(|k| est * r.powi(k as i32)).sum();
+        if total > tinct::diagnostics::regime::LONG_WORK_SECONDS && !quiet {
+            eprintln!(
+                "tinct: this study will take about {} of computing ({} levels, the coarsest about {}); Ctrl-C stops it",
+                fmt_t(total),
+                opts.levels,
+                fmt_t(est)
+            );
+        }
+    }
     let mut on_level = |k: usize, nx: usize, ny: usize| {
         if !quiet {
             eprintln!("tinct: level {k}: {nx} x {ny} cells");
         }
     };
     let report = converge(&scn, &opts, &mut on_level).map_err(study_failure)?;
-    let dir = a
-        .out
-        .unwrap_or_else(|| scn.output.dir.clone())
-        .join(&scn.name)
-        .join("converge");
     let written = write_converge(&report, &dir).map_err(study_failure)?;
     println!("scenario {}", report.scenario);
     for n in &report.notes {

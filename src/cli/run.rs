@@ -24,6 +24,10 @@ pub struct RunArgs {
     /// the instability; never for results).
     #[arg(long)]
     force: bool,
+    /// Allow more frames than the run has steps (each frame then forces a step of its own and
+    /// a picture).
+    #[arg(long)]
+    all_frames: bool,
 }
 
 /// Runs `tinct run`.
@@ -34,12 +38,16 @@ pub fn main(a: RunArgs) -> Result<(), Failure> {
         sets,
         quiet,
         force,
+        all_frames,
     } = a;
     let path = scenario.as_path();
     let sets = &sets[..];
     use indicatif::{ProgressBar, ProgressStyle};
     use tinct::run::{execute, RunFailure};
-    let options = tinct::scenario::LoadOptions { allow_unstable: force };
+    let options = tinct::scenario::LoadOptions {
+        allow_unstable: force,
+        many_frames: all_frames,
+    };
     let scn = tinct::scenario::load_with(path, sets, options).map_err(|e| bad_input(e.to_string()))?;
     let base = out.unwrap_or_else(|| scn.output.dir.clone());
     let bar = if quiet {
@@ -73,6 +81,14 @@ pub fn main(a: RunArgs) -> Result<(), Failure> {
             }
         }
     };
+    if let Some(est) = tinct::diagnostics::regime::estimate_seconds(&scn) {
+        if est > tinct::diagnostics::regime::LONG_WORK_SECONDS && !quiet {
+            eprintln!(
+                "tinct: this run will take about {} of wall time (estimated from a timed step; `tinct check` gives the detail); Ctrl-C stops it",
+                fmt_t(est)
+            );
+        }
+    }
     let result = execute(&scn, &base, &mut on_start, &mut progress);
     bar.finish_and_clear();
     match result {

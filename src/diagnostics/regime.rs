@@ -357,6 +357,21 @@ pub struct RegimeReport {
     pub suggested_dy: Option<f64>,
 }
 
+/// Wall seconds a run of `scn` is expected to take (one real step timed; frames and logs not
+/// included), or `None` when the scenario cannot be built. Commands print it before work that
+/// will take more than [`LONG_WORK_SECONDS`].
+pub fn estimate_seconds(scn: &crate::scenario::Scenario) -> Option<f64> {
+    let model = scn.build_model().ok()?;
+    let dt = run_step(&model, &scn.scheme).ok()?;
+    let initial = model.field_from(|x, y| scn.initial.value_at(x, y));
+    measure_cost(&model, &scn.scheme, initial, dt, scn.run.end, 1)
+        .ok()
+        .map(|c| c.run_seconds)
+}
+
+/// Work expected to last longer than this (s) is announced with its estimate first.
+pub const LONG_WORK_SECONDS: f64 = 60.0;
+
 /// The largest step a run of `model` with `scheme` takes, s, with a fixed step allowed above
 /// the stability bound (so `check` can report on it).
 pub fn run_step(model: &Model, scheme: &Scheme) -> Result<f64, crate::ModelError> {

@@ -103,6 +103,16 @@ fn sync_parent_dir(path: &Path) {
     let _ = path;
 }
 
+/// Checks that `dir` can be created and written, by creating it and a small probe file that is
+/// removed again: studies call this before any run so that an unwritable folder fails at once
+/// instead of after the work.
+pub fn ensure_writable(dir: &Path) -> Result<(), OutputError> {
+    std::fs::create_dir_all(dir).map_err(|e| OutputError::io(dir, e))?;
+    let probe = dir.join(format!(".tinct-probe-{}", std::process::id()));
+    File::create(&probe).map_err(|e| OutputError::io(&probe, e))?;
+    std::fs::remove_file(&probe).map_err(|e| OutputError::io(&probe, e))
+}
+
 /// Atomically replaces `path` with `bytes`.
 pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), OutputError> {
     write_atomic_with(path, |w| w.write_all(bytes))

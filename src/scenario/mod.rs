@@ -147,6 +147,9 @@ pub struct LoadOptions {
     /// Accept a fixed `scheme.dt` above the explicit stability bound (sets
     /// [`Scheme::allow_unstable`]; `--force`, for demonstrating instability only).
     pub allow_unstable: bool,
+    /// Accept more frames than the run has steps (each frame then forces a step of its own;
+    /// `--all-frames`).
+    pub many_frames: bool,
 }
 
 /// Reads and validates the scenario file at `path` with `overrides` (`key.path=value`).
@@ -192,7 +195,7 @@ pub fn parse_with(
     overrides: &[String],
     options: LoadOptions,
 ) -> Result<Scenario, ScenarioError> {
-    build::parse(text, path, overrides, options.allow_unstable).map_err(|problems| ScenarioError {
+    build::parse(text, path, overrides, options).map_err(|problems| ScenarioError {
         file: path.to_path_buf(),
         problems,
     })

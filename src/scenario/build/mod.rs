@@ -124,7 +124,12 @@ struct GridOut {
 
 /// Parses and validates; the error is every problem found. `allow_unstable` accepts a fixed
 /// step above the explicit stability bound (`--force`).
-pub(super) fn parse(text: &str, path: &Path, sets: &[String], allow_unstable: bool) -> Result<Scenario, Vec<Problem>> {
+pub(super) fn parse(
+    text: &str,
+    path: &Path,
+    sets: &[String],
+    options: super::LoadOptions,
+) -> Result<Scenario, Vec<Problem>> {
     let mut doc: Table = match toml::from_str(text) {
         Ok(t) => t,
         Err(e) => return Err(vec![syntax_problem(text, &e)]),
@@ -158,7 +163,7 @@ pub(super) fn parse(text: &str, path: &Path, sets: &[String], allow_unstable: bo
             Some(mut scheme),
             Some(output),
         ) if p.len() == 0 => {
-            scheme.allow_unstable = allow_unstable;
+            scheme.allow_unstable = options.allow_unstable;
             let model = ModelSpec {
                 grid: g.grid,
                 mask: g.mask,
@@ -173,7 +178,7 @@ pub(super) fn parse(text: &str, path: &Path, sets: &[String], allow_unstable: bo
             limits::amounts(&model, &initial, run.end, &mut p);
             limits::initial_on_grid(&initial, &model.grid, &mut p);
             if p.len() == 0 {
-                engine_checks(&model, &initial, &scheme, &mut p);
+                engine_checks(&model, &initial, &scheme, (&run, options.many_frames), &mut p);
             }
             Some(Scenario {
                 name,
@@ -240,7 +245,13 @@ fn engine_problem(e: &ModelError) -> Problem {
 }
 
 /// The engine's checks: builds the model and its stable step.
-fn engine_checks(spec: &ModelSpec, initial: &Initial, scheme: &Scheme, p: &mut Problems) {
+fn engine_checks(
+    spec: &ModelSpec,
+    initial: &Initial,
+    scheme: &Scheme,
+    (run, many_frames): (&super::RunSettings, bool),
+    p: &mut Problems,
+) {
     if let Err(e) = initial.validate() {
         p.0.push(engine_problem(&e));
     }
@@ -248,6 +259,22 @@ fn engine_checks(spec: &ModelSpec, initial: &Initial, scheme: &Scheme, p: &mut P
         Ok(model) => match max_step(&model, scheme) {
             Err(e) => p.0.push(engine_problem(&e)),
             Ok(dt) => {
+                // Frames land on their times: more frames than steps would force a step per
+                // frame and a picture each (when nothing moves, any step is exact).
+                let steps = (run.end / dt).ceil();
+                if dt.is_finite() && run.frames as f64 > steps && !many_frames {
+                    p.add(
+                        "run.frames",
+                        format!(
+                            "{} frames is more than the {} step(s) the run needs (dt = {} s): every frame would force a step of its own and write {} pictures; use at most {} frames, or pass --all-frames to run tinct anyway",
+                            run.frames,
+                            steps,
+                            sig(dt, 4),
+                            run.frames + 1,
+                            steps
+                        ),
+                    );
+                }
                 // Fewer than two steps per tidal period cannot represent the cycle at all (it
                 // aliases): most likely hours typed as seconds.
                 if let Some(tide) = spec.flow.tide.filter(|t| t.period < 2.0 * dt) {
