@@ -50,6 +50,21 @@ pub fn study_failure(e: StudyError) -> Failure {
 }
 
 /// Runs `tinct compare`.
+/// `<out or output.dir>/<name>/<study>`, checked writable before any run.
+pub(super) fn study_folder(
+    out: Option<PathBuf>,
+    scn: &tinct::scenario::Scenario,
+    study: &str,
+) -> Result<PathBuf, Failure> {
+    let dir = out
+        .unwrap_or_else(|| scn.output.dir.clone())
+        .join(&scn.name)
+        .join(study);
+    tinct::output::atomic::ensure_writable(&dir)
+        .map_err(|e| bad_input(format!("the output folder cannot be written, so nothing was run: {e}")))?;
+    Ok(dir)
+}
+
 pub fn main(a: CompareArgs) -> Result<(), Failure> {
     let scn = tinct::scenario::load(&a.scenario, &a.sets).map_err(|e| bad_input(e.to_string()))?;
     let times = a
@@ -74,14 +89,7 @@ pub fn main(a: CompareArgs) -> Result<(), Failure> {
         section,
         memory: None,
     };
-    let dir = a
-        .out
-        .clone()
-        .unwrap_or_else(|| scn.output.dir.clone())
-        .join(&scn.name)
-        .join("compare");
-    tinct::output::atomic::ensure_writable(&dir)
-        .map_err(|e| bad_input(format!("the output folder cannot be written, so nothing was run: {e}")))?;
+    let dir = study_folder(a.out.clone(), &scn, "compare")?;
     let quiet = a.quiet;
     if let Some(est) = tinct::diagnostics::regime::estimate_seconds(&scn) {
         // One run per scheme and time scheme, plus a reference refined r times in x, y and t

@@ -46,14 +46,7 @@ pub fn main(a: ConvergeArgs) -> Result<(), Failure> {
         quantities: a.quantities,
         ..ConvergeOptions::default()
     };
-    let dir = a
-        .out
-        .clone()
-        .unwrap_or_else(|| scn.output.dir.clone())
-        .join(&scn.name)
-        .join("converge");
-    tinct::output::atomic::ensure_writable(&dir)
-        .map_err(|e| bad_input(format!("the output folder cannot be written, so nothing was run: {e}")))?;
+    let dir = super::compare::study_folder(a.out.clone(), &scn, "converge")?;
     let quiet = a.quiet;
     if let Some(est) = tinct::diagnostics::regime::estimate_seconds(&scn) {
         // Level k has ratio^k times the cells in each direction and steps.

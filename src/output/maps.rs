@@ -248,7 +248,8 @@ pub fn render_scalar(map: &ScalarMap) -> Result<RgbImage, String> {
     Ok(img)
 }
 
-fn save(path: &Path, img: &RgbImage) -> Result<(), OutputError> {
+/// Encodes `img` as a PNG (fast compression) and writes it atomically at `path`.
+pub(crate) fn save(path: &Path, img: &RgbImage) -> Result<(), OutputError> {
     use image::codecs::png::{CompressionType, FilterType, PngEncoder};
     use image::ImageEncoder;
     let mut bytes = Vec::new();

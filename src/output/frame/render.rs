@@ -9,7 +9,7 @@ use rayon::prelude::*;
 use super::super::colour::{normalise, ColourScale, Ramp, RampLut, LAND_RGB};
 use super::super::draw::{outline_ink as draw_rect_outline, put, INK};
 use super::super::text::{draw_text, text_width};
-use super::super::{write_atomic, OutputError};
+use super::super::OutputError;
 use super::labels::ticks;
 use super::{
     format_time, frame_layout, FrameLayout, FrameSpec, BACKGROUND, BAR_H, CAPTION_PX, MARGIN, TICK_LEN, TICK_PX,
@@ -230,15 +230,6 @@ fn draw_map(img: &mut RgbImage, layout: &FrameLayout, spec: &FrameSpec, lut: &Ra
 
 /// Renders `spec` and writes it atomically as a PNG file at `path`.
 pub fn write_frame_png(path: &Path, spec: &FrameSpec) -> Result<(), OutputError> {
-    use image::codecs::png::{CompressionType, FilterType, PngEncoder};
-    use image::ImageEncoder;
     let img = render_inner(spec).map_err(|m| OutputError::invalid(path, m))?;
-    let mut bytes = Vec::with_capacity(img.as_raw().len() / 4);
-    PngEncoder::new_with_quality(&mut bytes, CompressionType::Fast, FilterType::Adaptive)
-        .write_image(img.as_raw(), img.width(), img.height(), image::ExtendedColorType::Rgb8)
-        .map_err(|source| OutputError::Png {
-            path: path.to_path_buf(),
-            source,
-        })?;
-    write_atomic(path, &bytes)
+    crate::output::maps::save(path, &img)
 }
