@@ -241,6 +241,7 @@ fn tidal_basin(time: TimeScheme, amplitude: f64, limiter: Limiter, stages: u8) -
         // Low water at t = 0: eta = a sin(2 pi t/T - pi/2).
         phase: -PI / 2.0,
         amplitude,
+        return_flow: 0.0,
     };
     let mut spec = openings_spec(
         g,
@@ -316,6 +317,7 @@ fn a_tide_that_would_dry_a_cell_is_refused_naming_it() {
         period: 3600.0,
         phase: 0.0,
         amplitude: 0.7,
+        return_flow: 0.0,
     };
     let spec = openings_spec(
         g,

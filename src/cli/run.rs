@@ -132,6 +132,9 @@ fn write_outcome(o: &tinct::run::RunOutcome, out: &mut impl std::io::Write) -> s
     for w in &s.warnings {
         writeln!(out, "  WARNING: {w}")?;
     }
+    if let Some(f) = &s.flushing {
+        writeln!(out, "  flushing: {}", f.note)?;
+    }
     if !s.receptors.is_empty() {
         writeln!(
             out,

@@ -4,6 +4,7 @@
 //! grid-convergence index of Celik et al. (2008).
 
 pub mod advice;
+pub mod flushing;
 pub mod gci;
 pub mod moments;
 pub mod norms;

@@ -83,6 +83,9 @@ pub struct Tide {
     pub phase: f64,
     /// Amplitude of the level, m (0: no rise and fall).
     pub amplitude: f64,
+    /// Return-flow factor b (0 to 1): the fraction of the ebb's water that comes back on the
+    /// next flood, for the tidal-prism flushing estimate only.
+    pub return_flow: f64,
 }
 
 /// What the user asks for: a kind, an optional tide, and whether a divergent field is
@@ -143,6 +146,13 @@ impl FlowSpec {
             finite("flow.tide.phase", t.phase)?;
             if !(t.amplitude.is_finite() && t.amplitude >= 0.0) {
                 return Err(invalid("flow.tide.amplitude", t.amplitude, "a level amplitude >= 0 m"));
+            }
+            if !(0.0..1.0).contains(&t.return_flow) {
+                return Err(invalid(
+                    "flow.tide.return_flow",
+                    t.return_flow,
+                    "a fraction from 0 up to (not including) 1",
+                ));
             }
             if t.amplitude > 0.0 && !matches!(self.kind, FlowKind::Openings(_)) {
                 return Err(invalid(
@@ -481,6 +491,7 @@ mod tests {
                 period: 100.0,
                 phase: PI,
                 amplitude: 0.0,
+                return_flow: 0.0,
             }),
             project: true,
         };

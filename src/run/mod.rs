@@ -234,6 +234,7 @@ pub fn execute(
     );
     summary.advice = advice;
     (summary.effective_diffusivity, summary.effective_diffusivity_reason) = plume.finish(sim.model.kx, sim.model.ky);
+    (summary.flushing, summary.flushing_reason) = summary::flushing_of(scn, &sim.model, &rows);
     let json = serde_json::to_string_pretty(&summary).expect("summary serialises");
     output::write_atomic(&dir.join("summary.json"), json.as_bytes())?;
     let outcome = RunOutcome { dir, summary };

@@ -55,6 +55,36 @@ pub struct EffectiveDiffusivity {
     pub note: String,
 }
 
+/// The flushing figures of a run from its budget rows, or why there are none: only a basin
+/// that starts with tracer (any initial field) and has no sources is measured.
+pub fn flushing_of(
+    scn: &Scenario,
+    model: &crate::model::Model,
+    rows: &[BudgetRow],
+) -> (Option<crate::diagnostics::flushing::Flushing>, Option<String>) {
+    if !scn.model.sources.is_empty() {
+        return (
+            None,
+            Some("the run has sources: flushing is measured for a basin that starts with tracer and has none".into()),
+        );
+    }
+    if matches!(scn.initial, Initial::Zero) {
+        return (None, Some("the basin starts without tracer".into()));
+    }
+    let samples: Vec<(f64, f64)> = rows.iter().map(|r| (r.time, r.mass)).collect();
+    let prism = model.flow.spec().tide.filter(|t| t.amplitude > 0.0).and_then(|t| {
+        let r = model.flow.report();
+        r.prism.map(|p| (r.volume, t.period, p, t.return_flow))
+    });
+    match crate::diagnostics::flushing::flushing(&samples, prism) {
+        Some(f) => (Some(f), None),
+        None => (
+            None,
+            Some("no tracer mass at the start, or fewer than two logged rows".into()),
+        ),
+    }
+}
+
 /// Why the moment method cannot measure an effective diffusivity for `scn` (`None` when the
 /// tracer comes from one release: one instantaneous source over a zero initial field, or a
 /// Gaussian or cone initial field without sources).
@@ -237,6 +267,11 @@ pub struct RunSummary {
     pub effective_diffusivity: Option<EffectiveDiffusivity>,
     /// Why `effective_diffusivity` is null, if it is.
     pub effective_diffusivity_reason: Option<String>,
+    /// Flushing of a basin that starts with tracer and has no sources: e-folding time, fitted
+    /// rate, and the tidal-prism estimate with a tide.
+    pub flushing: Option<crate::diagnostics::flushing::Flushing>,
+    /// Why `flushing` is null, if it is.
+    pub flushing_reason: Option<String>,
     /// Per-receptor statistics.
     pub receptors: Vec<ReceptorStats>,
     /// Files of the run, relative to its folder.
@@ -344,6 +379,8 @@ impl RunSummary {
             advice: Vec::new(),
             effective_diffusivity: None,
             effective_diffusivity_reason: None,
+            flushing: None,
+            flushing_reason: None,
             receptors: receptors.to_vec(),
             files,
             caution: super::CAUTION.into(),

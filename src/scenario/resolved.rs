@@ -106,10 +106,11 @@ pub(super) fn write(s: &Scenario) -> String {
     line(format!("project = {}", m.flow.project));
     if let Some(t) = m.flow.tide {
         line(format!(
-            "tide = {{ period = {}, phase = {}, amplitude = {} }}",
+            "tide = {{ period = {}, phase = {}, amplitude = {}, return_flow = {} }}",
             num(t.period),
             num(t.phase),
-            num(t.amplitude)
+            num(t.amplitude),
+            num(t.return_flow)
         ));
     }
     for o in openings.into_iter().flatten() {

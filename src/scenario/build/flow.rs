@@ -177,10 +177,22 @@ pub(super) fn flow_section(
                 );
                 return None;
             }
+            let return_flow = if ts.has("return_flow") {
+                check(
+                    ts.num("return_flow", p),
+                    "flow.tide.return_flow",
+                    |b| (0.0..1.0).contains(&b),
+                    "a fraction from 0 up to (not including) 1",
+                    p,
+                )
+            } else {
+                Some(0.0)
+            };
             Some(Tide {
                 period: period?,
                 phase: phase?,
                 amplitude: amplitude?,
+                return_flow: return_flow?,
             })
         }
     };

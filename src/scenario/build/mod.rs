@@ -51,7 +51,7 @@ pub(super) const FLOW_ALL: &[&str] = &[
     "kind", "velocity", "centre", "period", "speed", "tide", "project", "opening", "path",
 ];
 /// `flow.tide` keys.
-pub(super) const TIDE: &[&str] = &["period", "phase", "amplitude"];
+pub(super) const TIDE: &[&str] = &["period", "phase", "amplitude", "return_flow"];
 /// `[[flow.opening]]` keys.
 pub(super) const OPENING: &[&str] = &["name", "side", "from", "to", "discharge", "share"];
 /// `[boundary]` keys.
