@@ -14,6 +14,7 @@
 //! - [`error`]: [`OutputError`], naming the file in every variant.
 //! - `text` (private): antialiased text drawing with the embedded DejaVu Sans.
 
+pub mod animation;
 pub mod atomic;
 pub mod colour;
 mod draw;

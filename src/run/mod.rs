@@ -221,6 +221,10 @@ pub fn execute(
     output::write_atomic(&dir.join("receptors.csv"), receptors.csv().as_bytes())?;
     fields.finish()?;
     remove_stale_frames(&frames_dir, written);
+    if scn.output.animation {
+        let frames: Vec<PathBuf> = (0..written).map(|k| frames_dir.join(format!("{k:05}.png"))).collect();
+        output::animation::write_gif(&frames, &dir.join("animation.gif"))?;
+    }
     let mut summary = RunSummary::new(
         scn,
         &sim,

@@ -307,6 +307,9 @@ impl RunSummary {
         .map(String::from)
         .to_vec();
         files.extend((0..frames).map(|k| format!("frames/{k:05}.png")));
+        if scn.output.animation {
+            files.push("animation.gif".into());
+        }
         Self {
             program: format!("tinct {}", env!("CARGO_PKG_VERSION")),
             scenario: scn.name.clone(),

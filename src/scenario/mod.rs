@@ -92,6 +92,8 @@ pub struct OutputSettings {
     pub colour: ColourScale,
     /// Fixed colour range `(lo, hi)`; `None` follows the data.
     pub range: Option<(f64, f64)>,
+    /// Also write the frames as `animation.gif` (about ten seconds of play).
+    pub animation: bool,
 }
 
 /// `[tracer]`: what is being carried (the physics of the tracer lives in [`ModelSpec`]).

@@ -209,6 +209,7 @@ pub(super) fn write(s: &Scenario) -> String {
         Some(r) => line(format!("range = {}", pair(r))),
         None => line("# range: follows the data".into()),
     }
+    line(format!("animation = {}", s.output.animation));
     for src in &m.sources {
         line(String::new());
         line("[[source]]".into());

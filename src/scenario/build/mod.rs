@@ -89,7 +89,7 @@ pub(super) const SCHEME: &[&str] = &[
 /// `[run]` keys.
 pub(super) const RUN: &[&str] = &["end", "frames", "log_every"];
 /// `[output]` keys.
-pub(super) const OUTPUT: &[&str] = &["dir", "colour", "range"];
+pub(super) const OUTPUT: &[&str] = &["dir", "colour", "range", "animation"];
 
 /// The allowed keys of the table at `parents` (names without indices), where known.
 pub(super) fn schema(parents: &[&str]) -> Option<&'static [&'static str]> {

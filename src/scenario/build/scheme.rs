@@ -189,9 +189,24 @@ pub(super) fn output_section(root: Section, p: &mut Problems) -> Option<OutputSe
             );
         }
     }
+    let animation = match s.table.get("animation") {
+        None => false,
+        Some(toml::Value::Boolean(b)) => *b,
+        Some(other) => {
+            p.add(
+                "output.animation",
+                format!(
+                    "expected true or false, found {}",
+                    super::super::reader::type_name(other)
+                ),
+            );
+            false
+        }
+    };
     (p.len() == before).then(|| OutputSettings {
         dir: PathBuf::from(dir),
         colour,
         range,
+        animation,
     })
 }
