@@ -31,6 +31,9 @@ use super::{AtomicFile, OutputError};
 /// NaN values and in records that were announced but never written.
 pub const FILL_VALUE: f64 = 9.969209968386869e36;
 
+/// Name of the envelope variable `c_max(y, x)`.
+pub const MAX_VAR: &str = "c_max";
+
 /// Units of the time coordinate. The date is a placeholder: times are model
 /// time since the start of the run (see the variable's `comment`).
 const TIME_UNITS: &str = "seconds since 2000-01-01 00:00:00";
@@ -222,6 +225,17 @@ impl FieldsWriter {
                 ds.add_var_attr_string(&m.name, "standard_name", sn)?;
             }
             ds.add_var_attr_f64(&m.name, "_FillValue", vec![FILL_VALUE])?;
+            // The envelope: the largest value each cell reached at any step (written by
+            // `write_max`, fill until then).
+            ds.add_var_f64(MAX_VAR, &["y", "x"])?;
+            ds.add_var_attr_string(
+                MAX_VAR,
+                "long_name",
+                format!("largest {} reached at any step", m.long_name),
+            )?;
+            ds.add_var_attr_string(MAX_VAR, "units", &m.units)?;
+            ds.add_var_attr_string(MAX_VAR, "cell_methods", "time: maximum")?;
+            ds.add_var_attr_f64(MAX_VAR, "_FillValue", vec![FILL_VALUE])?;
 
             ds.add_global_attr_string("Conventions", "CF-1.8")?;
             ds.add_global_attr_string("title", &m.title)?;
@@ -304,6 +318,31 @@ impl FieldsWriter {
             fw.write_record_f64("time", index, &[time_s])?;
             fw.write_record_f64(&name, index, record)
         })
+    }
+
+    /// Writes the envelope `c_max(y, x)`: `values` has `ny * nx` entries, row 0 south; land and
+    /// NaN become [`FILL_VALUE`].
+    pub fn write_max(&mut self, values: &[f64], wet: Option<&[bool]>) -> Result<(), OutputError> {
+        let n = self.nx * self.ny;
+        if values.len() != n {
+            return Err(OutputError::invalid(
+                self.atomic.target(),
+                format!("c_max has {} values, expected ny*nx = {n}", values.len()),
+            ));
+        }
+        let data: Vec<f64> = values
+            .iter()
+            .enumerate()
+            .map(|(k, &v)| {
+                if wet.is_none_or(|w| w[k]) && !v.is_nan() {
+                    v
+                } else {
+                    FILL_VALUE
+                }
+            })
+            .collect();
+        let ds = self.data_set()?;
+        self.with_writer(&ds, |fw| fw.write_var_f64(MAX_VAR, &data))
     }
 
     /// Pads unwritten records with [`FILL_VALUE`], syncs the file and

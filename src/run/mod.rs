@@ -4,6 +4,7 @@
 //! it has (budget, receptors, fields so far, a summary saying why it stopped). Nothing here
 //! prints: progress goes to a callback.
 
+pub mod envelope;
 pub mod receptors;
 pub mod summary;
 
@@ -134,6 +135,7 @@ pub fn execute(
     let (mut dt_min, mut dt_max) = (f64::INFINITY, 0.0f64);
     let mut iterations = (0usize, 0usize);
     receptors.record(0.0, 0.0, &sim.state.c);
+    let mut envelope = envelope::Envelope::new(&grid, &sim.state.c);
     let write_frame = |sim: &Simulation, k: usize, fields: &mut FieldsWriter| -> Result<(), OutputError> {
         let values = sim.field();
         let spec = FrameSpec {
@@ -175,6 +177,7 @@ pub fn execute(
             iterations.1 += corr;
             // Statistics from every step; a CSV row only with a budget row.
             receptors.sample(st.t, st.last_dt, &st.c);
+            envelope.observe(&grid, &st.c);
             if st.step % log_every == 0 {
                 let row = s.budget_row();
                 rows.push(row);
@@ -219,7 +222,9 @@ pub fn execute(
     // Logs and summary: written whether or not the run completed.
     output::write_atomic(&dir.join("budget.csv"), budget_csv(&rows).as_bytes())?;
     output::write_atomic(&dir.join("receptors.csv"), receptors.csv().as_bytes())?;
+    fields.write_max(&envelope.c_max, Some(&wet))?;
     fields.finish()?;
+    write_envelope_png(scn, &envelope, &wet, &dir.join("envelope.png"))?;
     remove_stale_frames(&frames_dir, written);
     if scn.output.animation {
         let frames: Vec<PathBuf> = (0..written).map(|k| frames_dir.join(format!("{k:05}.png"))).collect();
@@ -264,6 +269,33 @@ pub fn budget_csv(rows: &[BudgetRow]) -> String {
 }
 
 /// Removes `NNNNN.png` frames numbered `count` or above, left by an earlier, longer run.
+/// `envelope.png`: the largest concentration each cell reached, in the run's colour scale
+/// (a log scale spans four decades below the peak).
+fn write_envelope_png(scn: &Scenario, e: &envelope::Envelope, wet: &[bool], path: &Path) -> Result<(), OutputError> {
+    use crate::output::colour::{ColourScale, Ramp};
+    let g = &scn.model.grid;
+    let peak = e.peak(wet);
+    let peak = if peak.is_finite() && peak > 0.0 { peak } else { 1.0 };
+    let range = scn.output.range.unwrap_or(match scn.output.colour {
+        ColourScale::Log => (peak * 1e-4, peak),
+        ColourScale::Linear => (0.0, peak),
+    });
+    let caption = format!("highest {} [{}] at any step", scn.tracer.name, scn.tracer.units);
+    let title = format!("{}: envelope", scn.name);
+    let map = output::maps::ScalarMap {
+        nx: g.nx,
+        ny: g.ny,
+        values: &e.c_max,
+        wet: Some(wet),
+        range,
+        scale: scn.output.colour,
+        ramp: Ramp::Sequential,
+        caption: &caption,
+        title: &title,
+    };
+    output::maps::write_scalar_png(path, &map)
+}
+
 fn remove_stale_frames(frames_dir: &Path, count: usize) {
     let Ok(entries) = std::fs::read_dir(frames_dir) else {
         return;

@@ -303,6 +303,7 @@ impl RunSummary {
             "receptors.csv",
             "summary.json",
             "fields.nc",
+            "envelope.png",
         ]
         .map(String::from)
         .to_vec();
