@@ -192,10 +192,7 @@ impl Model {
             return (f.u.clone(), f.v.clone());
         };
         let amp = f.spec().amplitude();
-        let rate = f
-            .spec()
-            .tide
-            .map_or(0.0, |t| amp * 2.0 * std::f64::consts::PI / t.period);
+        let rate = f.spec().tide.map_or(0.0, |t| t.peak_rate());
         let (mut fu, mut fv) = (vec![0.0; f.u.len()], vec![0.0; f.v.len()]);
         f.fill_into(&mut fu, &mut fv);
         // The filling adds to the base's magnitude: the peak of either direction.

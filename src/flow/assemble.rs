@@ -134,7 +134,7 @@ impl Flow {
                 }
             }
         }
-        let rate_max = spec.tide.map_or(0.0, |t| t.amplitude * 2.0 * PI / t.period);
+        let rate_max = spec.tide.map_or(0.0, |t| t.peak_rate());
         let fields: Vec<(&[f64], &[f64])> = if records.is_empty() {
             vec![(&u, &v)]
         } else {

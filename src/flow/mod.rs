@@ -88,6 +88,13 @@ pub struct Tide {
     pub return_flow: f64,
 }
 
+impl Tide {
+    /// The largest rate of rise of the level, `amplitude 2 pi / period`, m/s.
+    pub fn peak_rate(&self) -> f64 {
+        self.amplitude * 2.0 * PI / self.period
+    }
+}
+
 /// What the user asks for: a kind, an optional tide, and whether a divergent field is
 /// projected.
 #[derive(Debug, Clone, PartialEq)]
