@@ -155,6 +155,26 @@ fn write_outcome(o: &tinct::run::RunOutcome, out: &mut impl std::io::Write) -> s
             )?;
         }
     }
+    for e in &s.exceedance {
+        let at = e
+            .longest_at
+            .map(|(x, y)| {
+                format!(
+                    " (longest {} at x = {x:.0} m, y = {y:.0} m)",
+                    fmt_t(e.longest_time_above)
+                )
+            })
+            .unwrap_or_default();
+        writeln!(
+            out,
+            "  above {:e} ({}): largest area {:.4e} m2 at t = {}; ever above {:.4e} m2{at}",
+            e.threshold,
+            e.receptors.join(", "),
+            e.largest_area,
+            fmt_t(e.largest_area_time),
+            e.area_ever_above,
+        )?;
+    }
     writeln!(
         out,
         "  results: {} (summary.json, budget.csv, receptors.csv, fields.nc, {} frames)",

@@ -34,6 +34,9 @@ pub const FILL_VALUE: f64 = 9.969209968386869e36;
 /// Name of the envelope variable `c_max(y, x)`.
 pub const MAX_VAR: &str = "c_max";
 
+/// Name of the time-above variable `hours_above(threshold, y, x)`.
+pub const ABOVE_VAR: &str = "hours_above";
+
 /// Units of the time coordinate. The date is a placeholder: times are model
 /// time since the start of the run (see the variable's `comment`).
 const TIME_UNITS: &str = "seconds since 2000-01-01 00:00:00";
@@ -53,6 +56,11 @@ pub struct FieldMeta<'a> {
     pub title: &'a str,
     /// Global `history` attribute.
     pub history: &'a str,
+    /// Thresholds (tracer units) for the time-above variable `hours_above(threshold, y, x)`;
+    /// empty = no such variable.
+    pub thresholds: &'a [f64],
+    /// `comment` of the `threshold` coordinate (e.g. which receptors carry each threshold).
+    pub threshold_comment: &'a str,
 }
 
 /// Owned copy of [`FieldMeta`], so the writer has no borrowed lifetime.
@@ -64,6 +72,8 @@ struct OwnedMeta {
     standard_name: Option<String>,
     title: String,
     history: String,
+    thresholds: Vec<f64>,
+    threshold_comment: String,
 }
 
 /// Writes a field, one record (time step) at a time, to a NetCDF-3 file.
@@ -160,6 +170,8 @@ impl FieldsWriter {
                 standard_name: meta.standard_name.map(str::to_string),
                 title: meta.title.to_string(),
                 history: meta.history.to_string(),
+                thresholds: meta.thresholds.to_vec(),
+                threshold_comment: meta.threshold_comment.to_string(),
             },
             nx: x.len(),
             ny: y.len(),
@@ -236,6 +248,29 @@ impl FieldsWriter {
             ds.add_var_attr_string(MAX_VAR, "units", &m.units)?;
             ds.add_var_attr_string(MAX_VAR, "cell_methods", "time: maximum")?;
             ds.add_var_attr_f64(MAX_VAR, "_FillValue", vec![FILL_VALUE])?;
+            // Time at or above each threshold (written by `write_hours_above`).
+            if !m.thresholds.is_empty() {
+                ds.add_fixed_dim("threshold", m.thresholds.len())?;
+                ds.add_var_f64("threshold", &["threshold"])?;
+                ds.add_var_attr_string("threshold", "long_name", "receptor threshold concentration")?;
+                ds.add_var_attr_string("threshold", "units", &m.units)?;
+                if !m.threshold_comment.is_empty() {
+                    ds.add_var_attr_string("threshold", "comment", &m.threshold_comment)?;
+                }
+                ds.add_var_f64(ABOVE_VAR, &["threshold", "y", "x"])?;
+                ds.add_var_attr_string(
+                    ABOVE_VAR,
+                    "long_name",
+                    format!("time {} was at or above the threshold", m.long_name),
+                )?;
+                ds.add_var_attr_string(ABOVE_VAR, "units", "h")?;
+                ds.add_var_attr_string(
+                    ABOVE_VAR,
+                    "comment",
+                    "each step counts in full when the value at its end is at or above the threshold",
+                )?;
+                ds.add_var_attr_f64(ABOVE_VAR, "_FillValue", vec![FILL_VALUE])?;
+            }
 
             ds.add_global_attr_string("Conventions", "CF-1.8")?;
             ds.add_global_attr_string("title", &m.title)?;
@@ -345,6 +380,41 @@ impl FieldsWriter {
         self.with_writer(&ds, |fw| fw.write_var_f64(MAX_VAR, &data))
     }
 
+    /// Writes `hours_above(threshold, y, x)` and the `threshold` coordinate: one `ny * nx`
+    /// vector of hours per threshold given at creation; land and NaN become [`FILL_VALUE`].
+    pub fn write_hours_above(&mut self, hours: &[Vec<f64>], wet: Option<&[bool]>) -> Result<(), OutputError> {
+        let n = self.nx * self.ny;
+        if hours.len() != self.meta.thresholds.len() || hours.iter().any(|h| h.len() != n) {
+            return Err(OutputError::invalid(
+                self.atomic.target(),
+                format!(
+                    "hours_above needs {} thresholds of ny*nx = {n} values",
+                    self.meta.thresholds.len()
+                ),
+            ));
+        }
+        if hours.is_empty() {
+            return Ok(());
+        }
+        let data: Vec<f64> = hours
+            .iter()
+            .flat_map(|h| h.iter().enumerate())
+            .map(|(k, &v)| {
+                if wet.is_none_or(|w| w[k]) && !v.is_nan() {
+                    v
+                } else {
+                    FILL_VALUE
+                }
+            })
+            .collect();
+        let ds = self.data_set()?;
+        let th = self.meta.thresholds.clone();
+        self.with_writer(&ds, |fw| {
+            fw.write_var_f64("threshold", &th)?;
+            fw.write_var_f64(ABOVE_VAR, &data)
+        })
+    }
+
     /// Pads unwritten records with [`FILL_VALUE`], syncs the file and
     /// atomically renames it to the target path.
     pub fn finish(mut self) -> Result<(), OutputError> {
@@ -378,6 +448,8 @@ mod tests {
         units: "kg m-3",
         standard_name: None,
         title: "test run",
+        thresholds: &[],
+        threshold_comment: "",
         history: "created by unit test",
     };
 
@@ -467,6 +539,32 @@ mod tests {
         }
         let names: Vec<_> = std::fs::read_dir(d.path()).unwrap().collect();
         assert_eq!(names.len(), 1, "temporary file left behind");
+    }
+
+    #[test]
+    fn hours_above_has_a_threshold_axis() {
+        let d = tempfile::tempdir().unwrap();
+        let p = d.path().join("above.nc");
+        let meta = FieldMeta {
+            thresholds: &[0.1, 0.5],
+            threshold_comment: "0.1: beach; 0.5: pier",
+            ..META
+        };
+        let mut w = FieldsWriter::create(&p, &[0.0, 1.0], &[0.0], 1, &meta).unwrap();
+        w.write_record(0.0, &[1.0, 2.0], None).unwrap();
+        assert!(w.write_hours_above(&[vec![1.0, 2.0]], None).is_err());
+        w.write_hours_above(&[vec![1.0, 2.0], vec![0.5, f64::NAN]], Some(&[true, true]))
+            .unwrap();
+        w.finish().unwrap();
+        let mut r = FileReader::open(&p).unwrap();
+        let ds = r.data_set();
+        assert_eq!(ds.dim_size("threshold"), Some(2));
+        assert_eq!(ds.get_var(ABOVE_VAR).unwrap().dim_names(), ["threshold", "y", "x"]);
+        assert_eq!(ds.get_var_attr_as_string(ABOVE_VAR, "units").unwrap(), "h");
+        assert_eq!(ds.get_var_attr_as_string("threshold", "units").unwrap(), "kg m-3");
+        assert_eq!(r.read_var_f64("threshold").unwrap(), [0.1, 0.5]);
+        assert_eq!(r.read_var_f64(ABOVE_VAR).unwrap(), [1.0, 2.0, 0.5, FILL_VALUE]);
+        assert_eq!(r.read_var_f64("c").unwrap(), [1.0, 2.0]);
     }
 
     #[test]

@@ -5,11 +5,13 @@
 //! prints: progress goes to a callback.
 
 pub mod envelope;
+pub mod exceedance;
+pub mod frames;
 pub mod receptors;
 pub mod summary;
 
 use crate::budget::BudgetRow;
-use crate::output::{self, FieldMeta, FieldsWriter, FrameSpec, OutputError};
+use crate::output::{self, FieldMeta, FieldsWriter, OutputError};
 use crate::scenario::Scenario;
 use crate::step::Simulation;
 use crate::RunError;
@@ -120,40 +122,48 @@ pub fn execute(
     let title = format!("{} ({})", scn.name, scn.scheme.limiter.name());
     let history = format!("tinct {} run {}", env!("CARGO_PKG_VERSION"), scn.path.display());
     let long_name = format!("{} concentration", scn.tracer.name);
+    let named_thresholds: Vec<(String, Option<f64>)> = recs.iter().map(|(n, _, t)| (n.clone(), *t)).collect();
+    let mut exceed = exceedance::Exceedance::new(&grid, &wet, &named_thresholds, sim.state.t, &sim.state.c);
+    let thresholds: Vec<f64> = exceed
+        .iter()
+        .flat_map(|e| e.thresholds.iter().map(|t| t.value))
+        .collect();
+    let threshold_comment = exceed
+        .as_ref()
+        .map(|e| {
+            let parts: Vec<String> = (0..e.thresholds.len()).map(|k| e.label(k)).collect();
+            format!("threshold (receptors): {}", parts.join("; "))
+        })
+        .unwrap_or_default();
     let meta = FieldMeta {
-        name: "c",
+        name: frames::FIELD,
         long_name: &long_name,
         units: &scn.tracer.units,
         standard_name: standard_name(&scn.tracer.name),
         title: &scn.name,
         history: &history,
+        thresholds: &thresholds,
+        threshold_comment: &threshold_comment,
     };
-    let mut fields = FieldsWriter::create(&dir.join("fields.nc"), &grid.xs(), &grid.ys(), n_frames + 1, &meta)?;
+    let nc_path = dir.join("fields.nc");
+    let mut fields = FieldsWriter::create(&nc_path, &grid.xs(), &grid.ys(), n_frames + 1, &meta)?;
 
     let started = Instant::now();
+    // Seconds spent writing outputs, of the wall time.
+    let mut output_seconds = 0.0;
     let mut rows: Vec<BudgetRow> = vec![sim.budget_row()];
     let (mut dt_min, mut dt_max) = (f64::INFINITY, 0.0f64);
     let mut iterations = (0usize, 0usize);
     receptors.record(0.0, 0.0, &sim.state.c);
     let mut envelope = envelope::Envelope::new(&grid, &sim.state.c);
-    let write_frame = |sim: &Simulation, k: usize, fields: &mut FieldsWriter| -> Result<(), OutputError> {
-        let values = sim.field();
-        let spec = FrameSpec {
-            nx: grid.nx,
-            ny: grid.ny,
-            values: &values,
-            wet: Some(&wet),
-            tracer: &scn.tracer.name,
-            units: &scn.tracer.units,
-            time_s: sim.state.t,
-            scale: scn.output.colour,
-            range: scn.output.range,
-            title: Some(&title),
-        };
-        output::write_frame_png(&frames_dir.join(format!("{k:05}.png")), &spec)?;
-        fields.write_record(sim.state.t, &values, Some(&wet))
+    // A frame's field goes to fields.nc now; its picture is drawn once the run's range is known.
+    let write_frame = |sim: &Simulation, fields: &mut FieldsWriter, secs: &mut f64| -> Result<(), OutputError> {
+        let t0 = Instant::now();
+        let r = fields.write_record(sim.state.t, &sim.field(), Some(&wet));
+        *secs += t0.elapsed().as_secs_f64();
+        r
     };
-    write_frame(&sim, 0, &mut fields)?;
+    write_frame(&sim, &mut fields, &mut output_seconds)?;
     plume.observe(&grid, sim.state.t, &sim.field(), &wet);
 
     let end = scn.run.end;
@@ -178,10 +188,16 @@ pub fn execute(
             // Statistics from every step; a CSV row only with a budget row.
             receptors.sample(st.t, st.last_dt, &st.c);
             envelope.observe(&grid, &st.c);
+            if let Some(e) = exceed.as_mut() {
+                e.observe(&grid, &st.c, st.last_dt, st.t);
+            }
             if st.step % log_every == 0 {
                 let row = s.budget_row();
                 rows.push(row);
                 receptors.keep_row(st.t, &st.c);
+                if let Some(e) = exceed.as_mut() {
+                    e.keep_row(st.t);
+                }
                 if let Err(e) = s.check_row(&row) {
                     bad_row = Some(e);
                     return ControlFlow::Break(());
@@ -199,37 +215,59 @@ pub fn execute(
             failure = Some(e);
             break;
         }
+        let keep_all =
+            |rows: &mut Vec<BudgetRow>, receptors: &mut ReceptorLog, exceed: &mut Option<exceedance::Exceedance>| {
+                rows.push(sim.budget_row());
+                receptors.keep_row(sim.state.t, &sim.state.c);
+                if let Some(e) = exceed {
+                    e.keep_row(sim.state.t);
+                }
+            };
         if let Err(e) = res {
-            rows.push(sim.budget_row());
-            receptors.keep_row(sim.state.t, &sim.state.c);
+            keep_all(&mut rows, &mut receptors, &mut exceed);
             failure = Some(e);
             break;
         }
         if rows.last().map(|r| r.step) != Some(sim.state.step) {
-            rows.push(sim.budget_row());
-            receptors.keep_row(sim.state.t, &sim.state.c);
+            keep_all(&mut rows, &mut receptors, &mut exceed);
         }
         if let Some(e) = rows.last().and_then(|r| sim.check_row(r).err()) {
             failure = Some(e);
             break;
         }
-        write_frame(&sim, k, &mut fields)?;
+        write_frame(&sim, &mut fields, &mut output_seconds)?;
         plume.observe(&grid, sim.state.t, &sim.field(), &wet);
         written += 1;
     }
-    let wall = started.elapsed().as_secs_f64();
 
-    // Logs and summary: written whether or not the run completed.
+    // Logs, fields and pictures: written whether or not the run completed.
+    let writing = Instant::now();
     output::write_atomic(&dir.join("budget.csv"), budget_csv(&rows).as_bytes())?;
     output::write_atomic(&dir.join("receptors.csv"), receptors.csv().as_bytes())?;
+    if let Some(e) = &exceed {
+        output::write_atomic(&dir.join("exceedance.csv"), e.csv().as_bytes())?;
+    }
     fields.write_max(&envelope.c_max, Some(&wet))?;
+    if let Some(e) = &exceed {
+        fields.write_hours_above(&e.hours_above(), Some(&wet))?;
+    }
     fields.finish()?;
-    write_envelope_png(scn, &envelope, &wet, &dir.join("envelope.png"))?;
+    let lowest = rows.iter().map(|r| r.min).fold(f64::INFINITY, f64::min);
+    let style = frames::FrameStyle {
+        scn,
+        wet: &wet,
+        range: frames::run_range(scn, envelope.peak(&wet), lowest),
+        title: &title,
+    };
+    frames::render_frames(&nc_path, &frames_dir, written, &style)?;
+    frames::write_envelope_png(scn, &envelope.c_max, &style, &dir.join("envelope.png"))?;
     remove_stale_frames(&frames_dir, written);
     if scn.output.animation {
         let frames: Vec<PathBuf> = (0..written).map(|k| frames_dir.join(format!("{k:05}.png"))).collect();
         output::animation::write_gif(&frames, &dir.join("animation.gif"))?;
     }
+    output_seconds += writing.elapsed().as_secs_f64();
+    let wall = started.elapsed().as_secs_f64();
     let mut summary = RunSummary::new(
         scn,
         &sim,
@@ -244,6 +282,17 @@ pub fn execute(
     summary.advice = advice;
     (summary.effective_diffusivity, summary.effective_diffusivity_reason) = plume.finish(sim.model.kx, sim.model.ky);
     (summary.flushing, summary.flushing_reason) = summary::flushing_of(scn, &sim.model, &rows);
+    summary.output_seconds = output_seconds;
+    let march = wall - output_seconds;
+    summary.cell_updates_per_second = if march > 0.0 {
+        (summary.cells as f64) * (summary.steps as f64) / march
+    } else {
+        0.0
+    };
+    if let Some(e) = &exceed {
+        summary.exceedance = e.figures(&envelope.c_max, |i, j| grid.centre(i, j));
+        summary.files.push("exceedance.csv".into());
+    }
     let json = serde_json::to_string_pretty(&summary).expect("summary serialises");
     output::write_atomic(&dir.join("summary.json"), json.as_bytes())?;
     let outcome = RunOutcome { dir, summary };
@@ -269,33 +318,6 @@ pub fn budget_csv(rows: &[BudgetRow]) -> String {
 }
 
 /// Removes `NNNNN.png` frames numbered `count` or above, left by an earlier, longer run.
-/// `envelope.png`: the largest concentration each cell reached, in the run's colour scale
-/// (a log scale spans four decades below the peak).
-fn write_envelope_png(scn: &Scenario, e: &envelope::Envelope, wet: &[bool], path: &Path) -> Result<(), OutputError> {
-    use crate::output::colour::{ColourScale, Ramp};
-    let g = &scn.model.grid;
-    let peak = e.peak(wet);
-    let peak = if peak.is_finite() && peak > 0.0 { peak } else { 1.0 };
-    let range = scn.output.range.unwrap_or(match scn.output.colour {
-        ColourScale::Log => (peak * 1e-4, peak),
-        ColourScale::Linear => (0.0, peak),
-    });
-    let caption = format!("highest {} [{}] at any step", scn.tracer.name, scn.tracer.units);
-    let title = format!("{}: envelope", scn.name);
-    let map = output::maps::ScalarMap {
-        nx: g.nx,
-        ny: g.ny,
-        values: &e.c_max,
-        wet: Some(wet),
-        range,
-        scale: scn.output.colour,
-        ramp: Ramp::Sequential,
-        caption: &caption,
-        title: &title,
-    };
-    output::maps::write_scalar_png(path, &map)
-}
-
 fn remove_stale_frames(frames_dir: &Path, count: usize) {
     let Ok(entries) = std::fs::read_dir(frames_dir) else {
         return;

@@ -224,7 +224,9 @@ pub struct RunSummary {
     pub dt_max: f64,
     /// Wall-clock time of the time loop (frames and logs included), s.
     pub wall_seconds: f64,
-    /// Cell updates per wall-clock second.
+    /// Of `wall_seconds`, the time spent writing outputs (fields, logs, pictures, report).
+    pub output_seconds: f64,
+    /// Cell updates per wall-clock second of marching (outputs excluded).
     pub cell_updates_per_second: f64,
     /// Largest |budget residual| over the logged rows.
     pub max_abs_residual: f64,
@@ -274,6 +276,9 @@ pub struct RunSummary {
     pub flushing_reason: Option<String>,
     /// Per-receptor statistics.
     pub receptors: Vec<ReceptorStats>,
+    /// Per distinct receptor threshold: the largest area above it and when, the area ever
+    /// above, the longest time one cell spent above it (`fields.nc` `hours_above` has the map).
+    pub exceedance: Vec<super::exceedance::ExceedanceFigure>,
     /// Files of the run, relative to its folder.
     pub files: Vec<String>,
     /// The caution that goes with every result.
@@ -328,6 +333,7 @@ impl RunSummary {
             dt_min: if steps > 0 { dt_range.0 } else { 0.0 },
             dt_max: dt_range.1,
             wall_seconds,
+            output_seconds: 0.0,
             cell_updates_per_second: if wall_seconds > 0.0 {
                 cells as f64 * steps as f64 / wall_seconds
             } else {
@@ -386,6 +392,7 @@ impl RunSummary {
             flushing: None,
             flushing_reason: None,
             receptors: receptors.to_vec(),
+            exceedance: Vec::new(),
             files,
             caution: super::CAUTION.into(),
         }
