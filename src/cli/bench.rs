@@ -36,6 +36,14 @@ pub struct BenchArgs {
     /// `multigrid_cg` (what runs with land or periodic sides use).
     #[arg(long, value_delimiter = ',', default_value = "transform,multigrid_cg")]
     solvers: Vec<String>,
+    /// Instead of the step, measure what writing a run's outputs adds to its wall time: the
+    /// built-in 200 x 100 dock-basin scenario (12 frames, receptors, animation; or `--scenario`)
+    /// marched bare and run in full, alternately, `--reps` times.
+    #[arg(long)]
+    outputs: bool,
+    /// The scenario for `--outputs` (default: the built-in dock basin).
+    #[arg(long)]
+    scenario: Option<PathBuf>,
 }
 
 /// Runs `tinct bench`.
@@ -50,6 +58,8 @@ pub fn main(a: BenchArgs) -> Result<(), Failure> {
         implicit,
         steps,
         solvers,
+        outputs,
+        scenario,
     } = a;
     let schemes = parse_schemes(&schemes)?;
     if let Some(t) = threads {
@@ -60,6 +70,9 @@ pub fn main(a: BenchArgs) -> Result<(), Failure> {
     }
     if implicit {
         return implicit_bench(&sizes, steps, &solvers);
+    }
+    if outputs {
+        return outputs_bench(scenario.as_deref(), reps);
     }
     let refs = std::fs::read_to_string(&reference).ok();
     println!(
@@ -175,5 +188,43 @@ fn implicit_bench(sizes: &[usize], steps: usize, solvers: &[String]) -> Result<(
             }
         }
     }
+    Ok(())
+}
+
+/// Output cost: the median wall time of the bare march and of the full run, their ratio (and
+/// the median of the per-repetition ratios, which drifting load affects least), and the part
+/// `execute` counted as writing.
+fn outputs_bench(scenario: Option<&std::path::Path>, reps: usize) -> Result<(), Failure> {
+    use tinct::run::cost::{measure, median, BENCH_SCENARIO};
+    let scn = match scenario {
+        Some(p) => tinct::scenario::load(p, &[]),
+        None => tinct::scenario::parse(BENCH_SCENARIO, std::path::Path::new("dock-basin.toml"), &[]),
+    }
+    .map_err(|e| bad_input(e.to_string()))?;
+    let out = std::env::temp_dir().join(format!("tinct-bench-outputs-{}", std::process::id()));
+    let cost = measure(&scn, &out, reps);
+    let _ = std::fs::remove_dir_all(&out);
+    let cost = cost.map_err(failed)?;
+    let g = &scn.model.grid;
+    println!(
+        "output cost: {} ({} x {} cells, {} frames{}); {} repetition(s), bare and full alternately; {} thread(s)",
+        scn.name,
+        g.nx,
+        g.ny,
+        scn.run.frames,
+        if scn.output.animation { ", animation" } else { "" },
+        cost.bare.len(),
+        rayon::current_num_threads()
+    );
+    let ratios: Vec<f64> = cost.full.iter().zip(&cost.bare).map(|(f, b)| f / b).collect();
+    let (b, f, w) = (median(&cost.bare), median(&cost.full), median(&cost.writing));
+    println!("  bare march  {b:>8.3} s (median)");
+    println!("  full run    {f:>8.3} s (median); of which writing {w:.3} s");
+    println!(
+        "  full / bare {:>8.3} (medians), {:.3} (median of per-repetition ratios): outputs add {:.1}%",
+        f / b,
+        median(&ratios),
+        100.0 * (median(&ratios) - 1.0)
+    );
     Ok(())
 }

@@ -40,6 +40,11 @@ pub struct ExceedanceFigure {
 }
 
 /// Running exceedance statistics of a run.
+///
+/// Per step only the cells that cross a threshold are written: a cell's time above is kept as
+/// the sum of its closed spells above plus the start of the open one, so a step reads the
+/// field, the wet flags and one state byte per cell and threshold (the work is that of reading
+/// the field once, whatever the number of thresholds).
 #[derive(Debug, Clone)]
 pub struct Exceedance {
     nx: usize,
@@ -47,9 +52,16 @@ pub struct Exceedance {
     wet: Vec<bool>,
     /// Distinct thresholds, ascending.
     pub thresholds: Vec<Threshold>,
-    /// Seconds each cell spent at or above each threshold: one `nx * ny` row-major vector
-    /// (row 0 south) per threshold.
-    pub seconds_above: Vec<Vec<f64>>,
+    /// Wet flags as 0 or 1.
+    wet_u8: Vec<u8>,
+    /// Per threshold and cell (index `k * cells + cell`): 1 while at or above.
+    above: Vec<u8>,
+    /// When the open spell above began (the end of the step before the first step above).
+    since: Vec<f64>,
+    /// Seconds above in closed spells.
+    closed: Vec<f64>,
+    /// End time of the last step observed.
+    t_last: f64,
     /// Current area at or above each threshold, m2.
     area: Vec<f64>,
     /// Largest area and its time per threshold.
@@ -79,53 +91,102 @@ impl Exceedance {
         }
         thresholds.sort_by(|a, b| a.value.total_cmp(&b.value));
         let n = thresholds.len();
+        let cells = grid.cells();
         let mut e = Self {
             nx: grid.nx,
             cell_area: grid.cell_area(),
             wet: wet.to_vec(),
-            seconds_above: vec![vec![0.0; grid.cells()]; n],
+            wet_u8: wet.iter().map(|&w| u8::from(w)).collect(),
+            above: vec![0; cells * n],
+            since: vec![0.0; cells * n],
+            closed: vec![0.0; cells * n],
+            t_last: t0,
             area: vec![0.0; n],
             largest: vec![(0.0, t0); n],
             rows: Vec::new(),
             thresholds,
         };
-        e.count(grid, c, 0.0, t0);
+        // The initial state counts for the area only (no time has passed): a cell above at
+        // the start opens its spell at t0.
+        e.count(grid, c, t0);
         e.keep_row(t0);
         Some(e)
     }
 
-    /// Takes the padded field `c` at the end of a step of `dt` ending at `t` into account.
-    pub fn observe(&mut self, grid: &Grid, c: &[f64], dt: f64, t: f64) {
-        self.count(grid, c, dt, t);
+    /// Takes the padded field `c` at the end of a step ending at `t` into account: the whole
+    /// step counts as above for a cell at or above the threshold at its end.
+    pub fn observe(&mut self, grid: &Grid, c: &[f64], t: f64) {
+        self.count(grid, c, t);
     }
 
-    fn count(&mut self, grid: &Grid, c: &[f64], dt: f64, t: f64) {
-        let nx = self.nx;
-        let wet = &self.wet;
-        for (k, th) in self.thresholds.iter().enumerate() {
-            let v = th.value;
-            let cells: usize = self.seconds_above[k]
+    fn count(&mut self, grid: &Grid, c: &[f64], t: f64) {
+        let (nx, cells) = (self.nx, self.wet.len());
+        let t_prev = self.t_last;
+        // The first call opens the spells of cells above at the start, at the start.
+        let opened = if self.rows.is_empty() { t } else { t_prev };
+        // Rows in parallel only in blocks of about 64 k cells (rayon's per-task cost would
+        // dominate on small grids).
+        let min_rows = (65_536 / nx.max(1)).max(1);
+        let wet = &self.wet_u8;
+        for k in 0..self.thresholds.len() {
+            let v = self.thresholds[k].value;
+            let span = k * cells..(k + 1) * cells;
+            let n: usize = self.above[span.clone()]
                 .par_chunks_mut(nx)
+                .zip(self.since[span.clone()].par_chunks_mut(nx))
+                .zip(self.closed[span].par_chunks_mut(nx))
+                .with_min_len(min_rows)
                 .enumerate()
-                .map(|(j, row)| {
-                    let q = grid.idx(0, j as isize);
-                    let w = &wet[j * nx..(j + 1) * nx];
-                    let mut n = 0usize;
-                    for ((s, &x), &w) in row.iter_mut().zip(&c[q..q + nx]).zip(w) {
-                        if w && x >= v {
-                            *s += dt;
-                            n += 1;
+                .map_init(
+                    || vec![0u8; nx],
+                    |now, (j, ((above, since), closed))| {
+                        let q = grid.idx(0, j as isize);
+                        // The row's state now, branch-free (vectorises), then compared with the
+                        // state before as a whole: only crossings touch `since` and `closed`.
+                        for ((b, &x), &w) in now.iter_mut().zip(&c[q..q + nx]).zip(&wet[j * nx..(j + 1) * nx]) {
+                            *b = u8::from(x >= v) & w;
                         }
-                    }
-                    n
-                })
+                        let n = now.iter().fold(0u32, |s, &b| s + u32::from(b)) as usize;
+                        if now[..] != above[..] {
+                            for (p, (&b, a)) in now.iter().zip(above.iter_mut()).enumerate() {
+                                if b != *a {
+                                    if b == 1 {
+                                        since[p] = opened;
+                                    } else {
+                                        closed[p] += t_prev - since[p];
+                                    }
+                                    *a = b;
+                                }
+                            }
+                        }
+                        n
+                    },
+                )
                 .sum();
-            let a = cells as f64 * self.cell_area;
+            let a = n as f64 * self.cell_area;
             self.area[k] = a;
             if a > self.largest[k].0 {
                 self.largest[k] = (a, t);
             }
         }
+        self.t_last = t;
+    }
+
+    /// Seconds each cell spent at or above threshold `k` up to the last step observed:
+    /// `nx * ny` values, row-major, row 0 south.
+    pub fn seconds_above(&self, k: usize) -> Vec<f64> {
+        let cells = self.wet.len();
+        (0..cells)
+            .map(|cell| {
+                let p = k * cells + cell;
+                self.closed[p]
+                    + if self.above[p] == 1 {
+                        self.t_last - self.since[p]
+                    } else {
+                        0.0
+                    }
+            })
+            .collect()
     }
 
     /// Keeps the current areas as a row of `exceedance.csv` at time `t`.
@@ -168,9 +229,8 @@ impl Exceedance {
 
     /// Hours above each threshold per cell (`nx * ny` per threshold), for `fields.nc`.
     pub fn hours_above(&self) -> Vec<Vec<f64>> {
-        self.seconds_above
-            .iter()
-            .map(|s| s.iter().map(|&x| x / 3600.0).collect())
+        (0..self.thresholds.len())
+            .map(|k| self.seconds_above(k).iter().map(|&x| x / 3600.0).collect())
             .collect()
     }
 
@@ -181,7 +241,7 @@ impl Exceedance {
             .iter()
             .enumerate()
             .map(|(k, th)| {
-                let s = &self.seconds_above[k];
+                let s = &self.seconds_above(k);
                 let ever = c_max
                     .iter()
                     .zip(&self.wet)
@@ -232,11 +292,19 @@ mod tests {
         assert_eq!(e.thresholds[0].value, 0.2);
         assert_eq!(e.thresholds[1].receptors, vec!["a", "d"]);
         c[g.idx(1, 0)] = 0.3;
-        e.observe(&g, &c, 2.0, 2.0);
+        e.observe(&g, &c, 2.0);
         e.keep_row(2.0);
         // 0.2: two cells above for 2 s; 0.5: one cell.
-        assert_eq!(e.seconds_above[0], vec![2.0, 2.0, 0.0, 0.0]);
-        assert_eq!(e.seconds_above[1], vec![2.0, 0.0, 0.0, 0.0]);
+        assert_eq!(e.seconds_above(0), vec![2.0, 2.0, 0.0, 0.0]);
+        assert_eq!(e.seconds_above(1), vec![2.0, 0.0, 0.0, 0.0]);
+        // A spell that closes and one that reopens: 0.2 at cell (1, 0) drops out at t = 3
+        // and comes back at t = 5 (steps ending at 3, 4 and 5).
+        c[g.idx(1, 0)] = 0.1;
+        e.observe(&g, &c, 3.0);
+        e.observe(&g, &c, 4.0);
+        c[g.idx(1, 0)] = 0.3;
+        e.observe(&g, &c, 5.0);
+        assert_eq!(e.seconds_above(0), vec![5.0, 3.0, 0.0, 0.0]);
         let (t, a) = e.series();
         assert_eq!(t, vec![0.0, 2.0]);
         assert_eq!(a[1], vec![100.0, 50.0]);
@@ -245,8 +313,30 @@ mod tests {
         assert_eq!(f[1].largest_area_time, 0.0);
         assert_eq!(f[1].area_ever_above, 100.0);
         assert_eq!(f[1].longest_at, Some((5.0, 2.5)));
-        assert_eq!(f[0].area_time, 4.0 * 50.0);
+        assert_eq!(f[0].area_time, 8.0 * 50.0);
         assert!(e.csv().starts_with("time,area_above_0.2,area_above_0.5\n"));
+    }
+
+    #[test]
+    #[ignore = "timing for the record: cargo test --release -- --ignored --nocapture exceedance"]
+    fn time_per_step() {
+        let g = Grid::new(200, 100, 5.0, 5.0, 0.0, 0.0).unwrap();
+        let wet = vec![true; g.cells()];
+        let c: Vec<f64> = (0..g.padded_len()).map(|k| (k % 97) as f64 / 97.0).collect();
+        let recs = vec![("a".to_string(), Some(0.5)), ("b".to_string(), Some(0.2))];
+        let mut e = Exceedance::new(&g, &wet, &recs, 0.0, &c).unwrap();
+        let t0 = std::time::Instant::now();
+        for s in 1..=4000 {
+            e.observe(&g, &c, s as f64);
+        }
+        let per = t0.elapsed().as_secs_f64() / 4000.0 * 1e6;
+        let mut env = crate::run::envelope::Envelope::new(&g, &c);
+        let t1 = std::time::Instant::now();
+        for _ in 1..=4000 {
+            env.observe(&g, &c);
+        }
+        let per_env = t1.elapsed().as_secs_f64() / 4000.0 * 1e6;
+        println!("{per:.1} us per step (2 thresholds); the envelope's running maximum {per_env:.1} us");
     }
 
     #[test]

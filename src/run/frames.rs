@@ -3,9 +3,11 @@
 //! (known only once the run is over) and they can be compared and animated; they are drawn in
 //! parallel.
 
+use crate::output::animation::{gif_frame, GifFrame, GifPalette};
 use crate::output::colour::{ColourScale, Ramp};
 use crate::output::{self, FrameSpec, OutputError, FILL_VALUE};
 use crate::scenario::Scenario;
+use image::RgbImage;
 use rayon::prelude::*;
 use std::path::Path;
 
@@ -39,18 +41,29 @@ pub struct FrameStyle<'a> {
     pub range: Option<(f64, f64)>,
     /// Title on every frame.
     pub title: &'a str,
+    /// Also reduce every frame for `animation.gif`.
+    pub animate: bool,
 }
 
 /// Draws frames `00000.png ..` into `frames_dir` from the first `count` records of the finished
-/// `fields.nc` at `nc`.
-pub fn render_frames(nc: &Path, frames_dir: &Path, count: usize, style: &FrameStyle) -> Result<(), OutputError> {
+/// `fields.nc` at `nc`; with `style.animate`, also returns them mapped onto one palette for
+/// the GIF (learnt from the first frame).
+pub fn render_frames(
+    nc: &Path,
+    frames_dir: &Path,
+    count: usize,
+    style: &FrameStyle,
+) -> Result<Option<(GifPalette, Vec<GifFrame>)>, OutputError> {
+    let mut palette: Option<GifPalette> = None;
+    let mut gif = Vec::new();
     let read_err = |e: netcdf3::ReadError| OutputError::invalid(nc, format!("reading the fields back: {e:?}"));
     let mut reader = netcdf3::FileReader::open(nc).map_err(read_err)?;
     let times = reader.read_var_f64("time").map_err(read_err)?;
     let batch = 2 * rayon::current_num_threads().max(1);
     let mut k0 = 0;
     while k0 < count {
-        let k1 = (k0 + batch).min(count);
+        // The first frame alone, so the palette exists before the others are mapped.
+        let k1 = if k0 == 0 { 1 } else { (k0 + batch).min(count) };
         let mut records = Vec::with_capacity(k1 - k0);
         for k in k0..k1 {
             let rec = reader.read_record(FIELD, k).map_err(read_err)?;
@@ -64,16 +77,24 @@ pub fn render_frames(nc: &Path, frames_dir: &Path, count: usize, style: &FrameSt
             }
             records.push((k, times.get(k).copied().unwrap_or(f64::NAN), values));
         }
-        records
+        let drawn = records
             .par_iter()
             .map(|(k, t, values)| draw_frame(&frames_dir.join(format!("{k:05}.png")), *t, values, style))
-            .collect::<Result<Vec<()>, OutputError>>()?;
+            .collect::<Result<Vec<RgbImage>, OutputError>>()?;
+        if style.animate {
+            let pal = palette.get_or_insert_with(|| GifPalette::learn(&drawn[0]));
+            for (img, k) in drawn.iter().zip(k0..) {
+                let f = gif_frame(img, pal)
+                    .map_err(|m| OutputError::invalid(frames_dir.join(format!("{k:05}.png")), m))?;
+                gif.push(f);
+            }
+        }
         k0 = k1;
     }
-    Ok(())
+    Ok(palette.map(|p| (p, gif)))
 }
 
-fn draw_frame(path: &Path, t: f64, values: &[f64], style: &FrameStyle) -> Result<(), OutputError> {
+fn draw_frame(path: &Path, t: f64, values: &[f64], style: &FrameStyle) -> Result<RgbImage, OutputError> {
     let scn = style.scn;
     let g = &scn.model.grid;
     let spec = FrameSpec {
@@ -88,7 +109,9 @@ fn draw_frame(path: &Path, t: f64, values: &[f64], style: &FrameStyle) -> Result
         range: style.range,
         title: Some(style.title),
     };
-    output::write_frame_png(path, &spec)
+    let img = output::render_frame(&spec)?;
+    output::maps::save(path, &img)?;
+    Ok(img)
 }
 
 /// `envelope.png`: the largest concentration each cell reached, in the run's colour range.

@@ -4,6 +4,7 @@
 //! it has (budget, receptors, fields so far, a summary saying why it stopped). Nothing here
 //! prints: progress goes to a callback.
 
+pub mod cost;
 pub mod envelope;
 pub mod exceedance;
 pub mod frames;
@@ -189,7 +190,7 @@ pub fn execute(
             receptors.sample(st.t, st.last_dt, &st.c);
             envelope.observe(&grid, &st.c);
             if let Some(e) = exceed.as_mut() {
-                e.observe(&grid, &st.c, st.last_dt, st.t);
+                e.observe(&grid, &st.c, st.t);
             }
             if st.step % log_every == 0 {
                 let row = s.budget_row();
@@ -258,13 +259,14 @@ pub fn execute(
         wet: &wet,
         range: frames::run_range(scn, envelope.peak(&wet), lowest),
         title: &title,
+        animate: scn.output.animation,
     };
-    frames::render_frames(&nc_path, &frames_dir, written, &style)?;
+    let gif = frames::render_frames(&nc_path, &frames_dir, written, &style)?;
     frames::write_envelope_png(scn, &envelope.c_max, &style, &dir.join("envelope.png"))?;
     remove_stale_frames(&frames_dir, written);
-    if scn.output.animation {
-        let frames: Vec<PathBuf> = (0..written).map(|k| frames_dir.join(format!("{k:05}.png"))).collect();
-        output::animation::write_gif(&frames, &dir.join("animation.gif"))?;
+    if let Some((palette, gif)) = gif {
+        let delay = output::animation::frame_delay(gif.len());
+        output::animation::write_gif(&gif, &palette, delay, &dir.join("animation.gif"))?;
     }
     output_seconds += writing.elapsed().as_secs_f64();
     let wall = started.elapsed().as_secs_f64();
