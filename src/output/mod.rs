@@ -16,6 +16,7 @@
 
 pub mod animation;
 pub mod atomic;
+pub mod chart;
 pub mod colour;
 mod draw;
 pub mod error;
