@@ -5,6 +5,7 @@
 //! prints: progress goes to a callback.
 
 pub mod envelope;
+pub mod plots;
 pub mod receptors;
 pub mod summary;
 
