@@ -165,6 +165,9 @@ fn receptor_chart(p: &RunPlots) -> Chart {
     c
 }
 
+/// Reads one budget term from a row.
+type Term = fn(&BudgetRow) -> f64;
+
 /// Budget terms against time, with the largest residual in the caption.
 fn budget_chart(p: &RunPlots) -> Chart {
     let rows = p.rows;
@@ -176,7 +179,7 @@ fn budget_chart(p: &RunPlots) -> Chart {
         Axis::linear(format!("mass [{mu}]")),
     );
     let t: Vec<f64> = rows.iter().map(|r| r.time / d).collect();
-    let terms: [(&str, fn(&BudgetRow) -> f64); 5] = [
+    let terms: [(&str, Term); 5] = [
         ("mass in the water", |r| r.mass),
         ("added by sources (cumulative)", |r| r.added),
         ("inflow (cumulative)", |r| r.inflow),

@@ -304,9 +304,12 @@ pub fn write_converge(report: &ConvergeReport, dir: &Path) -> Result<Vec<PathBuf
     // Each guide its own grey and stroke, so the two slopes can be told apart.
     let guide_style = [([60, 60, 66], Dash::Dashed), ([130, 130, 138], Dash::Dotted)];
     for ((n, y), (colour, dash)) in guides.iter().zip(guide_style) {
-        chart
-            .lines
-            .push(Line::new(n.clone(), h.clone(), y.clone()).colour(colour).dash(dash));
+        chart.lines.push(
+            Line::new(n.clone(), h.clone(), y.clone())
+                .colour(colour)
+                .dash(dash)
+                .markers(false),
+        );
     }
     let p_png = dir.join("converge.png");
     chart.write(&p_png)?;

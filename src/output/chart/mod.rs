@@ -126,6 +126,8 @@ pub struct Line {
     pub width: u32,
     /// Drawn in dark ink and one pixel wider (a reference line).
     pub emphasis: bool,
+    /// Dots at the data points; `None` draws them when there are 12 drawable points or fewer.
+    pub markers: Option<bool>,
 }
 
 impl Line {
@@ -148,6 +150,12 @@ impl Line {
     /// The same line stroked with `dash`.
     pub fn dash(mut self, dash: Dash) -> Self {
         self.dash = Some(dash);
+        self
+    }
+
+    /// The same line with (`true`) or without point markers.
+    pub fn markers(mut self, on: bool) -> Self {
+        self.markers = Some(on);
         self
     }
 
@@ -421,7 +429,8 @@ pub fn axis_range(axis: &Axis, lo: f64, hi: f64, pad: bool) -> (f64, f64) {
         if b <= a * 1.0001 {
             b = a * 10.0;
         }
-        return (a, b);
+        // A hair wider, so that plotters' decade search finds the end decades themselves.
+        return (a * (1.0 - 1e-9), b * (1.0 + 1e-9));
     }
     if hi - lo <= 1e-9 * hi.abs().max(lo.abs()) {
         let d = if lo == 0.0 { 1.0 } else { 0.5 * lo.abs() };

@@ -35,6 +35,16 @@ fn err<E: std::fmt::Debug>(e: E) -> String {
     format!("chart drawing failed: {e:?}")
 }
 
+/// Tick count asked of plotters: on a log axis enough for the 2 and 5 of each decade when the
+/// range is short (only those and the decades get labels).
+fn label_hint(log: bool, linear: usize) -> usize {
+    if log {
+        20
+    } else {
+        linear
+    }
+}
+
 /// Draws `c` into a new image.
 pub(super) fn render(c: &Chart) -> Result<RgbImage, String> {
     ensure_font()?;
@@ -44,9 +54,13 @@ pub(super) fn render(c: &Chart) -> Result<RgbImage, String> {
     let mut yr = (f64::INFINITY, f64::NEG_INFINITY);
     for l in &c.lines {
         for (&x, &y) in l.x.iter().zip(&l.y) {
-            if c.x.usable(x) && c.y.usable(y) {
+            // The x range covers every sample, drawable in y or not (a time axis keeps the
+            // whole run).
+            if c.x.usable(x) {
                 xr = (xr.0.min(x), xr.1.max(x));
-                yr = (yr.0.min(y), yr.1.max(y));
+                if c.y.usable(y) {
+                    yr = (yr.0.min(y), yr.1.max(y));
+                }
             }
         }
     }
@@ -120,8 +134,8 @@ where
     let yf = |v: &f64| if c.y.log { fmt_log_tick(*v) } else { fmt_tick(*v) };
     chart
         .configure_mesh()
-        .x_labels(9)
-        .y_labels(8)
+        .x_labels(label_hint(c.x.log, 9))
+        .y_labels(label_hint(c.y.log, 8))
         .x_label_formatter(&xf)
         .y_label_formatter(&yf)
         .bold_line_style(rgb(GRID))
@@ -159,7 +173,7 @@ where
                 let px = run.iter().map(|p| area.map_coordinate(p)).collect();
                 stroke(root, px, st)?;
             }
-            if run.len() == 1 || drawable <= 12 {
+            if l.markers.unwrap_or(run.len() == 1 || drawable <= 12) {
                 for &p in &run {
                     area.draw(&Circle::new(p, st.width + 2, rgb(st.colour).filled()))
                         .map_err(err)?;
@@ -179,6 +193,11 @@ where
         let tx = if px + 8 + w > pr as i32 { px - 8 - w } else { px + 8 };
         let ty = (py - 20).max(pt as i32 + 2);
         root.draw(&Text::new(n.label.clone(), (tx, ty), font(LABEL_PX).color(&ink)))
+            .map_err(err)?;
+    }
+    if let Some(cap) = &c.caption {
+        let y = lay.height as i32 - super::CAPTION_H as i32 + 2;
+        root.draw(&Text::new(cap.clone(), (pl as i32, y), font(LABEL_PX).color(&ink)))
             .map_err(err)?;
     }
     legend(root, c, &styles)
