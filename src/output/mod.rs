@@ -10,12 +10,15 @@
 //!   colour bar) for `tinct check`.
 //! - [`netcdf`]: CF-1.8 NetCDF-3 field files ([`FieldsWriter`], [`FieldMeta`],
 //!   [`FILL_VALUE`]), written record by record.
-//! - [`plot`]: study plots (a panel of equally scaled map tiles, line plots).
+//! - [`chart`]: line charts drawn with plotters ([`chart::Chart`]: linear or log axes,
+//!   reference lines, marked points, a legend sized from its text).
+//! - [`plot`]: study panels of equally scaled map tiles and the PNG writer [`plot::write_png`].
 //! - [`error`]: [`OutputError`], naming the file in every variant.
 //! - `text` (private): antialiased text drawing with the embedded DejaVu Sans.
 
 pub mod animation;
 pub mod atomic;
+pub mod chart;
 pub mod colour;
 mod draw;
 pub mod error;

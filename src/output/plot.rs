@@ -1,33 +1,17 @@
-//! Study plots drawn directly into RGB images with the embedded font: a panel of equally scaled
-//! map tiles with labels (`compare/panel.png`) and line plots with linear or logarithmic axes
-//! (`compare/profiles.png`, the convergence plot).
-//!
-//! Maps use the project's sequential ramp; lines use a small palette of distinct hues chosen for
-//! this project (dark ink for the emphasised reference line).
+//! Study panels drawn directly into RGB images with the embedded font: equally scaled map tiles
+//! with labels (`compare/panel.png`) on the project's sequential ramp, and the PNG writer shared
+//! by frames, maps, panels and charts. Line charts live in [`super::chart`].
 
 use std::path::Path;
 
 use image::{Rgb, RgbImage};
 
 use super::colour::{normalise, ColourScale, Ramp, RampLut, LAND_RGB};
-use super::draw::{outline, put, INK};
+use super::draw::{outline, INK};
 use super::text::{draw_text, text_width};
 use super::{write_atomic, OutputError};
 
 const BACKGROUND: [u8; 3] = [255, 255, 255];
-const GRID_RGB: [u8; 3] = [225, 225, 228];
-/// Line colours, in order of use (the project's own choice of distinct hues).
-const PALETTE: [[u8; 3]; 8] = [
-    [204, 85, 0],
-    [0, 114, 178],
-    [0, 150, 110],
-    [170, 60, 150],
-    [200, 160, 0],
-    [90, 90, 200],
-    [160, 40, 40],
-    [60, 160, 200],
-];
-
 /// Largest long side of one tile, pixels.
 const TILE_LONG: usize = 260;
 const TILE_GAP: u32 = 16;
@@ -189,201 +173,6 @@ pub fn render_panel(
     img
 }
 
-/// One line of a line plot.
-#[derive(Debug, Clone, Copy)]
-pub struct Series<'a> {
-    /// Legend name.
-    pub name: &'a str,
-    /// Abscissae.
-    pub x: &'a [f64],
-    /// Ordinates (non-finite values, and non-positive ones on a log axis, break the line).
-    pub y: &'a [f64],
-    /// Drawn thicker in dark ink (the reference).
-    pub emphasis: bool,
-}
-
-/// A line plot.
-#[derive(Debug, Clone, Copy)]
-pub struct LinePlot<'a> {
-    /// Title on top.
-    pub title: &'a str,
-    /// Label of the x axis.
-    pub x_label: &'a str,
-    /// Label of the y axis.
-    pub y_label: &'a str,
-    /// The lines.
-    pub series: &'a [Series<'a>],
-    /// Logarithmic x axis.
-    pub log_x: bool,
-    /// Logarithmic y axis.
-    pub log_y: bool,
-}
-
-const PLOT_W: u32 = 900;
-const PLOT_H: u32 = 560;
-const LEFT: u32 = 90;
-const RIGHT: u32 = 220;
-const TOP: u32 = 60;
-const BOTTOM: u32 = 64;
-
-/// Axis range and ticks (values and labels) for data in `[lo, hi]`.
-fn axis(lo: f64, hi: f64, log: bool) -> ((f64, f64), Vec<(f64, String)>) {
-    if log {
-        let (a, b) = (lo.log10().floor(), hi.log10().ceil());
-        let b = if b <= a { a + 1.0 } else { b };
-        let step = ((b - a) / 6.0).ceil().max(1.0);
-        let mut t = Vec::new();
-        let mut e = a;
-        while e <= b + 1e-9 {
-            t.push((10f64.powf(e), format!("1e{}", e as i64)));
-            e += step;
-        }
-        return ((10f64.powf(a), 10f64.powf(b)), t);
-    }
-    let (lo, hi) = if hi > lo {
-        (lo, hi)
-    } else {
-        (lo - 0.5 * lo.abs().max(1.0), hi + 0.5 * hi.abs().max(1.0))
-    };
-    let raw = (hi - lo) / 5.0;
-    let mag = 10f64.powf(raw.log10().floor());
-    let step = [1.0, 2.0, 2.5, 5.0, 10.0]
-        .iter()
-        .map(|m| m * mag)
-        .find(|&s| s >= raw)
-        .unwrap_or(10.0 * mag);
-    let (a, b) = ((lo / step).floor() * step, (hi / step).ceil() * step);
-    let mut t = Vec::new();
-    let mut k = 0.0;
-    while a + k * step <= b + 1e-9 * step {
-        let v = a + k * step;
-        let v = if v.abs() < 1e-12 * step { 0.0 } else { v };
-        t.push((v, fmt_num(v)));
-        k += 1.0;
-    }
-    ((a, b), t)
-}
-
-/// A line with a square brush of `w` pixels.
-fn line(img: &mut RgbImage, (x0, y0): (f64, f64), (x1, y1): (f64, f64), w: i64, rgb: [u8; 3]) {
-    let n = ((x1 - x0).abs().max((y1 - y0).abs()).ceil() as i64).clamp(1, 20_000);
-    for k in 0..=n {
-        let t = k as f64 / n as f64;
-        let (x, y) = (x0 + t * (x1 - x0), y0 + t * (y1 - y0));
-        for a in 0..w {
-            for b in 0..w {
-                put(img, x.round() as i64 + a - w / 2, y.round() as i64 + b - w / 2, rgb);
-            }
-        }
-    }
-}
-
-/// Renders a line plot with a legend on the right.
-pub fn render_line_plot(p: &LinePlot) -> RgbImage {
-    let mut img = RgbImage::from_pixel(PLOT_W, PLOT_H, Rgb(BACKGROUND));
-    let usable = |v: f64, log: bool| v.is_finite() && (!log || v > 0.0);
-    let mut xr = (f64::INFINITY, f64::NEG_INFINITY);
-    let mut yr = (f64::INFINITY, f64::NEG_INFINITY);
-    for s in p.series {
-        for (&x, &y) in s.x.iter().zip(s.y) {
-            if usable(x, p.log_x) && usable(y, p.log_y) {
-                xr = (xr.0.min(x), xr.1.max(x));
-                yr = (yr.0.min(y), yr.1.max(y));
-            }
-        }
-    }
-    draw_text(&mut img, p.title, LEFT as f32, 12.0, 17.0, INK);
-    if !(xr.0.is_finite() && yr.0.is_finite()) {
-        draw_text(&mut img, "no data to plot", LEFT as f32, 200.0, 16.0, INK);
-        return img;
-    }
-    let ((xa, xb), xt) = axis(xr.0, xr.1, p.log_x);
-    let ((ya, yb), yt) = axis(yr.0, yr.1, p.log_y);
-    let (pw, ph) = (f64::from(PLOT_W - LEFT - RIGHT), f64::from(PLOT_H - TOP - BOTTOM));
-    let map = |v: f64, a: f64, b: f64, log: bool| {
-        if log {
-            (v.log10() - a.log10()) / (b.log10() - a.log10())
-        } else {
-            (v - a) / (b - a)
-        }
-    };
-    let to_px = |x: f64, y: f64| {
-        (
-            f64::from(LEFT) + map(x, xa, xb, p.log_x) * pw,
-            f64::from(TOP) + (1.0 - map(y, ya, yb, p.log_y)) * ph,
-        )
-    };
-    for (v, label) in &xt {
-        let (px, _) = to_px(*v, ya.max(f64::MIN_POSITIVE));
-        line(&mut img, (px, f64::from(TOP)), (px, f64::from(TOP) + ph), 1, GRID_RGB);
-        let w = text_width(label, 13.0);
-        draw_text(
-            &mut img,
-            label,
-            px as f32 - w / 2.0,
-            (TOP as f32) + ph as f32 + 6.0,
-            13.0,
-            INK,
-        );
-    }
-    for (v, label) in &yt {
-        let (_, py) = to_px(xa.max(f64::MIN_POSITIVE), *v);
-        line(&mut img, (f64::from(LEFT), py), (f64::from(LEFT) + pw, py), 1, GRID_RGB);
-        let w = text_width(label, 13.0);
-        draw_text(&mut img, label, LEFT as f32 - w - 6.0, py as f32 - 8.0, 13.0, INK);
-    }
-    outline(
-        &mut img,
-        i64::from(LEFT),
-        i64::from(TOP),
-        pw as i64 + 1,
-        ph as i64 + 1,
-        INK,
-    );
-    let xw = text_width(p.x_label, 14.0);
-    draw_text(
-        &mut img,
-        p.x_label,
-        LEFT as f32 + (pw as f32 - xw) / 2.0,
-        (PLOT_H - BOTTOM + 28) as f32,
-        14.0,
-        INK,
-    );
-    draw_text(&mut img, p.y_label, 8.0, (TOP - 22) as f32, 13.0, INK);
-    let mut colour_k = 0;
-    for (k, s) in p.series.iter().enumerate() {
-        let (rgb, w) = if s.emphasis {
-            (INK, 3)
-        } else {
-            let c = PALETTE[colour_k % PALETTE.len()];
-            colour_k += 1;
-            (c, 2)
-        };
-        let mut prev: Option<(f64, f64)> = None;
-        for (&x, &y) in s.x.iter().zip(s.y) {
-            if !(usable(x, p.log_x) && usable(y, p.log_y)) {
-                prev = None;
-                continue;
-            }
-            let q = to_px(x, y);
-            if let Some(a) = prev {
-                line(&mut img, a, q, w, rgb);
-            } else if s.x.len() <= 12 {
-                line(&mut img, q, q, w + 3, rgb);
-            }
-            if s.x.len() <= 12 {
-                line(&mut img, q, q, w + 3, rgb);
-            }
-            prev = Some(q);
-        }
-        let ly = TOP as f64 + 10.0 + 22.0 * k as f64;
-        let lx = f64::from(PLOT_W - RIGHT) + 16.0;
-        line(&mut img, (lx, ly + 8.0), (lx + 24.0, ly + 8.0), w, rgb);
-        draw_text(&mut img, s.name, (lx + 30.0) as f32, ly as f32, 13.0, INK);
-    }
-    img
-}
-
 /// Writes `img` as a PNG file at `path`, atomically.
 pub fn write_png(path: &Path, img: &RgbImage) -> Result<(), OutputError> {
     use image::codecs::png::{CompressionType, FilterType, PngEncoder};
@@ -418,27 +207,5 @@ mod tests {
             let p = img.get_pixel(x, y + lay.tile_h - 1).0;
             assert_ne!(p, BACKGROUND);
         }
-    }
-
-    #[test]
-    fn line_plot_draws_its_lines() {
-        let x = [1.0, 2.0, 4.0];
-        let y = [1.0, 0.25, 0.0625];
-        let s = [Series {
-            name: "a",
-            x: &x,
-            y: &y,
-            emphasis: false,
-        }];
-        let img = render_line_plot(&LinePlot {
-            title: "t",
-            x_label: "h",
-            y_label: "e",
-            series: &s,
-            log_x: true,
-            log_y: true,
-        });
-        let coloured = img.pixels().filter(|p| p.0 == PALETTE[0]).count();
-        assert!(coloured > 100, "{coloured}");
     }
 }

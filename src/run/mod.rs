@@ -8,6 +8,7 @@ pub mod cost;
 pub mod envelope;
 pub mod exceedance;
 pub mod frames;
+pub mod plots;
 pub mod receptors;
 pub mod summary;
 

@@ -103,6 +103,20 @@ impl ReceptorLog {
         self.stats.is_empty()
     }
 
+    /// The kept rows as sample times and one series per receptor (the data of `receptors.csv`).
+    pub fn times_and_values(&self) -> (Vec<f64>, Vec<Vec<f64>>) {
+        let w = self.stats.len() + 1;
+        let mut times = Vec::new();
+        let mut values = vec![Vec::new(); self.stats.len()];
+        for row in self.rows.chunks_exact(w) {
+            times.push(row[0]);
+            for (s, &v) in values.iter_mut().zip(&row[1..]) {
+                s.push(v);
+            }
+        }
+        (times, values)
+    }
+
     /// `receptors.csv`: `time`, then one column per receptor.
     pub fn csv(&self) -> String {
         let w = self.stats.len() + 1;
@@ -174,5 +188,7 @@ mod tests {
         assert_eq!((s.peak, s.peak_time, s.arrival_time), (0.9, 30.0, Some(20.0)));
         assert_eq!(s.time_above_threshold, Some(30.0));
         assert_eq!(log.csv(), "time,beach\n0e0,0e0\n5e1,7e-1\n");
+        // The same kept rows through the accessor.
+        assert_eq!(log.times_and_values(), (vec![0.0, 50.0], vec![vec![0.0, 0.7]]));
     }
 }

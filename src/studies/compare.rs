@@ -20,7 +20,8 @@ use crate::diagnostics::moments::effective_diffusivity;
 use crate::diagnostics::norms::{error_norms, ErrorNorms};
 use crate::grid::Grid;
 use crate::ops::limiter::Limiter;
-use crate::output::plot::{self, LinePlot, Series, Tile};
+use crate::output::chart::{Axis, Chart, Line};
+use crate::output::plot::{self, Tile};
 use crate::output::write_atomic;
 use crate::scenario::Scenario;
 use crate::step::TimeScheme;
@@ -428,30 +429,30 @@ pub fn write_compare(report: &CompareReport, dir: &Path) -> Result<Vec<PathBuf>,
         .filter_map(|(name, f)| cut(g, f, section).map(|(x, y)| (name.clone(), x, y)))
         .collect();
     if !cuts.is_empty() {
-        let series: Vec<Series> = cuts
-            .iter()
-            .enumerate()
-            .map(|(k, (name, x, y))| Series {
-                name,
-                x,
-                y,
-                emphasis: k == 0,
-            })
-            .collect();
         let (what, axis) = match section {
             Section::AlongX { y } => (format!("section along x at y = {y:.4} m"), "x [m]"),
             Section::AlongY { x } => (format!("section along y at x = {x:.4} m"), "y [m]"),
         };
-        let plot_img = plot::render_line_plot(&LinePlot {
-            title: &format!("{}: {what}", report.scenario),
-            x_label: axis,
-            y_label: &format!("concentration [{}]", report.units),
-            series: &series,
-            log_x: false,
-            log_y: false,
-        });
+        let mut chart = Chart::new(
+            format!("{}: {what}", report.scenario),
+            Axis::linear(axis),
+            Axis::linear(format!("concentration [{}]", report.units)),
+        );
+        // The reference first, in dark ink; the schemes in the palette, then dashed.
+        chart.lines = cuts
+            .iter()
+            .enumerate()
+            .map(|(k, (name, x, y))| {
+                let line = Line::new(name.clone(), x.clone(), y.clone());
+                if k == 0 {
+                    line.emphasised()
+                } else {
+                    line
+                }
+            })
+            .collect();
         let p = dir.join("profiles.png");
-        plot::write_png(&p, &plot_img)?;
+        chart.write(&p)?;
         paths.push(p);
     }
     let p_csv = dir.join("metrics.csv");

@@ -14,7 +14,7 @@ use super::exact::exact_solution;
 use super::{refine, run_scenario, RunRecord, StudyError};
 use crate::diagnostics::gci::{gci, Gci, GciParams};
 use crate::diagnostics::norms::error_norms;
-use crate::output::plot::{self, LinePlot, Series};
+use crate::output::chart::{Axis, Chart, Dash, Line};
 use crate::output::write_atomic;
 use crate::scenario::Scenario;
 use std::path::{Path, PathBuf};
@@ -292,30 +292,26 @@ pub fn write_converge(report: &ConvergeReport, dir: &Path) -> Result<Vec<PathBuf
                 .collect()
         })
         .unwrap_or_default();
-    let mut series: Vec<Series> = data
+    let mut chart = Chart::new(
+        format!("{}: error against grid spacing", report.scenario),
+        Axis::log("h = sqrt(dx dy) [m]"),
+        Axis::log("relative error"),
+    );
+    chart.lines = data
         .iter()
-        .map(|(n, y)| Series {
-            name: n,
-            x: &h,
-            y,
-            emphasis: false,
-        })
+        .map(|(n, y)| Line::new(n.clone(), h.clone(), y.clone()))
         .collect();
-    series.extend(guides.iter().map(|(n, y)| Series {
-        name: n,
-        x: &h,
-        y,
-        emphasis: true,
-    }));
-    let img = plot::render_line_plot(&LinePlot {
-        title: &format!("{}: error against grid spacing", report.scenario),
-        x_label: "h = sqrt(dx dy) [m]",
-        y_label: "relative error",
-        series: &series,
-        log_x: true,
-        log_y: true,
-    });
+    // Each guide its own grey and stroke, so the two slopes can be told apart.
+    let guide_style = [([60, 60, 66], Dash::Dashed), ([130, 130, 138], Dash::Dotted)];
+    for ((n, y), (colour, dash)) in guides.iter().zip(guide_style) {
+        chart.lines.push(
+            Line::new(n.clone(), h.clone(), y.clone())
+                .colour(colour)
+                .dash(dash)
+                .markers(false),
+        );
+    }
     let p_png = dir.join("converge.png");
-    plot::write_png(&p_png, &img)?;
+    chart.write(&p_png)?;
     Ok(vec![p_csv, p_png])
 }
