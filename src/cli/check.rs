@@ -124,6 +124,8 @@ fn write_all(
     std::fs::create_dir_all(dir).map_err(|e| OutputError::io(dir, e))?;
     let (nx, ny) = (m.nx, m.ny);
     let wet = Some(&m.wet[..]);
+    let extent = tinct::run::markers::extent(&scn.model.grid);
+    let marks = tinct::run::markers::markers(scn);
 
     // Regime map.
     let colours = |r: Regime| match r {
@@ -149,6 +151,7 @@ fn write_all(
             codes: &codes,
             categories: &cats,
             title: &title,
+            extent: Some(extent),
         },
     )?;
 
@@ -173,6 +176,8 @@ fn write_all(
             ramp: Ramp::Diverging,
             caption: &caption,
             title: &title,
+            extent: Some(extent),
+            markers: &marks,
         },
     )?;
 
@@ -195,6 +200,8 @@ fn write_all(
             ramp: Ramp::Sequential,
             caption: &caption,
             title: &title,
+            extent: Some(extent),
+            markers: &marks,
         },
     )?;
 
@@ -216,6 +223,8 @@ fn write_all(
                 ramp: Ramp::Sequential,
                 caption: "upwind numerical diffusivity [m2/s] (no physical diffusivity to compare with)",
                 title: &title,
+                extent: Some(extent),
+                markers: &marks,
             },
         )?;
     } else {
@@ -233,6 +242,8 @@ fn write_all(
                 caption:
                     "upwind numerical / physical diffusivity, log scale; grey where equal, red where numerical wins",
                 title: &title,
+                extent: Some(extent),
+                markers: &marks,
             },
         )?;
     }

@@ -5,6 +5,7 @@
 //! prints: progress goes to a callback.
 
 pub mod envelope;
+pub mod markers;
 pub mod receptors;
 pub mod summary;
 
@@ -149,6 +150,8 @@ pub fn execute(
             scale: scn.output.colour,
             range: scn.output.range,
             title: Some(&title),
+            extent: Some(markers::extent(&grid)),
+            markers: &markers::markers(scn),
         };
         output::write_frame_png(&frames_dir.join(format!("{k:05}.png")), &spec)?;
         fields.write_record(sim.state.t, &values, Some(&wet))
@@ -292,6 +295,8 @@ fn write_envelope_png(scn: &Scenario, e: &envelope::Envelope, wet: &[bool], path
         ramp: Ramp::Sequential,
         caption: &caption,
         title: &title,
+        extent: Some(markers::extent(g)),
+        markers: &markers::markers(scn),
     };
     output::maps::write_scalar_png(path, &map)
 }
