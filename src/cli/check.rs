@@ -155,13 +155,13 @@ fn write_all(
         },
     )?;
 
-    // Peclet map: log scale, the diverging ramp's neutral centre at Pe = 2.
+    // Peclet map: log scale, the diverging ramp's near-white centre at Pe = 2 (land is mid-grey).
     let (lo, hi) = centred_log_range(&m.pe, &m.wet, 2.0);
     let no_k = r.kx == 0.0 && r.ky == 0.0;
     let caption = if no_k {
         "cell Peclet number: infinite everywhere the water moves (no physical diffusivity)".to_string()
     } else {
-        "cell Peclet number max(Pe_x, Pe_y), log scale; grey at Pe = 2, red convection-dominated".to_string()
+        "cell Peclet number max(Pe_x, Pe_y), log scale: near-white at Pe = 2, blue below (diffusion wins), red above (convection wins); land mid-grey".to_string()
     };
     let title = format!("{}: cell Peclet number", scn.name);
     maps::write_scalar_png(
@@ -240,7 +240,7 @@ fn write_all(
                 scale: ColourScale::Log,
                 ramp: Ramp::Diverging,
                 caption:
-                    "upwind numerical / physical diffusivity, log scale; grey where equal, red where numerical wins",
+                    "upwind numerical / physical diffusivity, log scale: near-white where equal, red where numerical wins; land mid-grey",
                 title: &title,
                 extent: Some(extent),
                 markers: &marks,
