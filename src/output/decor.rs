@@ -159,7 +159,7 @@ pub fn length_label(m: f64) -> String {
 
 /// Pixel (column, row) of the point (`x`, `y`) on the map, `None` outside the extent.
 pub fn marker_pixel(l: &FrameLayout, e: &Extent, x: f64, y: f64) -> Option<(u32, u32)> {
-    if !e.is_usable() || !(x.is_finite() && y.is_finite()) {
+    if !(e.is_usable() && x.is_finite() && y.is_finite()) {
         return None;
     }
     if x < e.x0 || x > e.x1 || y < e.y0 || y > e.y1 {
