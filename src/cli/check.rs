@@ -161,7 +161,7 @@ fn write_all(
     let caption = if no_k {
         "cell Peclet number: infinite everywhere the water moves (no physical diffusivity)".to_string()
     } else {
-        "cell Peclet number max(Pe_x, Pe_y), log scale: near-white at Pe = 2, blue below (diffusion wins), red above (convection wins); land mid-grey".to_string()
+        "cell Peclet number (log): near-white at Pe = 2, blue below, red above; land mid-grey".to_string()
     };
     let title = format!("{}: cell Peclet number", scn.name);
     maps::write_scalar_png(
@@ -239,8 +239,7 @@ fn write_all(
                 range: (lo, hi),
                 scale: ColourScale::Log,
                 ramp: Ramp::Diverging,
-                caption:
-                    "upwind numerical / physical diffusivity, log scale: near-white where equal, red where numerical wins; land mid-grey",
+                caption: "numerical / physical diffusivity (log): near-white where equal, red above; land mid-grey",
                 title: &title,
                 extent: Some(extent),
                 markers: &marks,
