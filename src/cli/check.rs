@@ -124,6 +124,8 @@ fn write_all(
     std::fs::create_dir_all(dir).map_err(|e| OutputError::io(dir, e))?;
     let (nx, ny) = (m.nx, m.ny);
     let wet = Some(&m.wet[..]);
+    let extent = tinct::run::markers::extent(&scn.model.grid);
+    let marks = tinct::run::markers::markers(scn);
 
     // Regime map.
     let colours = |r: Regime| match r {
@@ -149,16 +151,17 @@ fn write_all(
             codes: &codes,
             categories: &cats,
             title: &title,
+            extent: Some(extent),
         },
     )?;
 
-    // Peclet map: log scale, the diverging ramp's neutral centre at Pe = 2.
+    // Peclet map: log scale, the diverging ramp's near-white centre at Pe = 2 (land is mid-grey).
     let (lo, hi) = centred_log_range(&m.pe, &m.wet, 2.0);
     let no_k = r.kx == 0.0 && r.ky == 0.0;
     let caption = if no_k {
         "cell Peclet number: infinite everywhere the water moves (no physical diffusivity)".to_string()
     } else {
-        "cell Peclet number max(Pe_x, Pe_y), log scale; grey at Pe = 2, red convection-dominated".to_string()
+        "cell Peclet number (log): near-white at Pe = 2, blue below, red above; land mid-grey".to_string()
     };
     let title = format!("{}: cell Peclet number", scn.name);
     maps::write_scalar_png(
@@ -173,6 +176,8 @@ fn write_all(
             ramp: Ramp::Diverging,
             caption: &caption,
             title: &title,
+            extent: Some(extent),
+            markers: &marks,
         },
     )?;
 
@@ -195,6 +200,8 @@ fn write_all(
             ramp: Ramp::Sequential,
             caption: &caption,
             title: &title,
+            extent: Some(extent),
+            markers: &marks,
         },
     )?;
 
@@ -216,6 +223,8 @@ fn write_all(
                 ramp: Ramp::Sequential,
                 caption: "upwind numerical diffusivity [m2/s] (no physical diffusivity to compare with)",
                 title: &title,
+                extent: Some(extent),
+                markers: &marks,
             },
         )?;
     } else {
@@ -230,9 +239,10 @@ fn write_all(
                 range: (lo, hi),
                 scale: ColourScale::Log,
                 ramp: Ramp::Diverging,
-                caption:
-                    "upwind numerical / physical diffusivity, log scale; grey where equal, red where numerical wins",
+                caption: "numerical / physical diffusivity (log): near-white where equal, red above; land mid-grey",
                 title: &title,
+                extent: Some(extent),
+                markers: &marks,
             },
         )?;
     }

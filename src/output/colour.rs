@@ -307,6 +307,26 @@ mod tests {
     }
 
     #[test]
+    fn diverging_neutral_is_near_white_and_far_from_land_grey() {
+        // Maps say "near-white at the centre, land mid-grey": the two must differ clearly.
+        // A CIELAB lightness difference of 20 is far above the just-noticeable difference of
+        // about 1 (CIE 1976 L*, common practice for "clearly different").
+        let centre = srgb_lightness(ramp_rgb(Ramp::Diverging, 0.5));
+        let land = srgb_lightness(LAND_RGB);
+        assert!(centre > 90.0, "centre L* = {centre}");
+        assert!(centre - land > 20.0, "centre L* {centre} vs land L* {land}");
+        // Land also differs from every diverging colour of similar lightness by hue: the
+        // ramp's colours within 10 L* of land are clearly tinted (a channel spread above 30).
+        for t in samples(100) {
+            let c = ramp_rgb(Ramp::Diverging, t);
+            if (srgb_lightness(c) - land).abs() < 10.0 {
+                let spread = c.iter().max().unwrap() - c.iter().min().unwrap();
+                assert!(spread > 30, "t={t}: {c:?} close to land {LAND_RGB:?}");
+            }
+        }
+    }
+
+    #[test]
     fn normalise_linear() {
         assert_eq!(normalise(5.0, 0.0, 10.0, ColourScale::Linear), 0.5);
         assert_eq!(normalise(-1.0, 0.0, 10.0, ColourScale::Linear), 0.0);

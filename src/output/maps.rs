@@ -8,6 +8,9 @@
 //!   logarithmic, with decade (log) or rounded (linear) ticks; values outside the range take
 //!   the end colours, infinite values the top colour, NaN the [`NAN_RGB`](super::colour::NAN_RGB) flag.
 //!
+//! With an [`Extent`] both draw axes in metres, a scale bar and a north arrow
+//! ([`decor`](super::decor)); a scalar map also draws source and receptor [`Marker`]s.
+//!
 //! Like the rest of `output`, this depends on no other tinct module: callers pass plain slices.
 
 use std::path::Path;
@@ -15,6 +18,7 @@ use std::path::Path;
 use image::RgbImage;
 
 use super::colour::{normalise, ColourScale, Ramp, RampLut, LAND_RGB};
+use super::decor::{draw_decor, draw_markers, Extent, Marker};
 use super::draw::{outline_ink as outline, put, INK};
 use super::frame::{frame_layout, FrameLayout};
 use super::text::{draw_text, text_width};
@@ -51,6 +55,8 @@ pub struct CategoryMap<'a> {
     pub categories: &'a [Category<'a>],
     /// Title above the map.
     pub title: &'a str,
+    /// Outer cell edges in metres; `Some` draws axes, scale bar and north arrow.
+    pub extent: Option<Extent>,
 }
 
 /// A continuous map of one value per cell.
@@ -74,6 +80,11 @@ pub struct ScalarMap<'a> {
     pub caption: &'a str,
     /// Title above the map.
     pub title: &'a str,
+    /// Outer cell edges in metres; `Some` draws axes, scale bar and north arrow.
+    pub extent: Option<Extent>,
+    /// Sources and receptors drawn on the map (only with an extent; points outside it are
+    /// skipped).
+    pub markers: &'a [Marker],
 }
 
 /// Pixel -> cell index along one axis (nearest cell centre).
@@ -123,8 +134,11 @@ pub fn render_categories(map: &CategoryMap) -> Result<RgbImage, String> {
     paint(&mut img, &l, map.nx, map.ny, |k| {
         map.categories.get(map.codes[k] as usize).map_or(LAND_RGB, |c| c.rgb)
     });
+    if let Some(e) = map.extent {
+        draw_decor(&mut img, &l, &e);
+    }
     // Legend: swatches in rows under the map.
-    let (mut x, mut y) = (BAR_INSET, l.map_y + l.map_h + BAR_GAP);
+    let (mut x, mut y) = (BAR_INSET, l.strip_y + BAR_GAP);
     for c in map.categories {
         let w = SWATCH + 6 + text_width(c.label, LABEL_PX).ceil() as u32 + 24;
         if x + w > l.width - BAR_INSET / 2 && x > BAR_INSET {
@@ -206,7 +220,11 @@ pub fn render_scalar(map: &ScalarMap) -> Result<RgbImage, String> {
             lut.get(normalise(map.values[k], lo, hi, map.scale))
         }
     });
-    let bar_y = l.map_y + l.map_h + BAR_GAP;
+    if let Some(e) = map.extent {
+        draw_decor(&mut img, &l, &e);
+        draw_markers(&mut img, &l, &e, map.markers);
+    }
+    let bar_y = l.strip_y + BAR_GAP;
     let bar_w = l.width.saturating_sub(2 * BAR_INSET).max(2);
     let denom = f64::from(bar_w - 1);
     for bx in 0..bar_w {
@@ -299,6 +317,7 @@ mod tests {
             codes: &codes,
             categories: &cats,
             title: "t",
+            extent: None,
         };
         let img = render_categories(&m).unwrap();
         let l = frame_layout(2, 2);
@@ -329,6 +348,8 @@ mod tests {
             ramp: Ramp::Diverging,
             caption: "x",
             title: "t",
+            extent: None,
+            markers: &[],
         };
         let img = render_scalar(&m).unwrap();
         let l = frame_layout(4, 1);

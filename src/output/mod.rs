@@ -4,6 +4,8 @@
 //!   [`AtomicFile`]), used by every writer below.
 //! - [`colour`]: the project's own colour ramps ([`Ramp`], [`ramp_rgb`]),
 //!   [`ColourScale`] and [`normalise`], the land shade [`LAND_RGB`].
+//! - [`decor`]: axes in metres, scale bar, north arrow and source/receptor markers
+//!   ([`Extent`], [`Marker`], [`MarkerKind`]), shared by frames and maps.
 //! - [`frame`]: PNG concentration frames ([`FrameSpec`], [`render_frame`],
 //!   [`write_frame_png`], [`frame_layout`], [`format_time`]).
 //! - [`maps`]: PNG maps of per-cell diagnostics (categorical with a legend, continuous with a
@@ -20,6 +22,7 @@ pub mod animation;
 pub mod atomic;
 pub mod chart;
 pub mod colour;
+pub mod decor;
 mod draw;
 pub mod error;
 pub mod frame;
@@ -30,6 +33,7 @@ mod text;
 
 pub use atomic::{write_atomic, write_atomic_with, AtomicFile};
 pub use colour::{normalise, ramp_rgb, ColourScale, Ramp, LAND_RGB, NAN_RGB};
+pub use decor::{Extent, Marker, MarkerKind};
 pub use error::OutputError;
 pub use frame::{format_time, frame_layout, render_frame, write_frame_png, FrameLayout, FrameSpec};
 pub use netcdf::{FieldMeta, FieldsWriter, FILL_VALUE};

@@ -98,15 +98,18 @@ fn fmt_num(v: f64) -> String {
     }
 }
 
-/// Renders the panel: every tile on the linear colour range `range`, labels under each tile,
-/// the title on top and one colour bar with `caption` at the bottom. `wet` (`nx * ny`) shades
-/// land.
+/// Renders the panel: every tile on the colour range `range` mapped by `scale` (a log scale
+/// needs a positive `lo`; values at or below it take the bottom colour), labels under each
+/// tile, the title on top and one colour bar with `caption` at the bottom. `wet` (`nx * ny`)
+/// shades land.
+#[allow(clippy::too_many_arguments)]
 pub fn render_panel(
     nx: usize,
     ny: usize,
     wet: Option<&[bool]>,
     tiles: &[Tile],
     range: (f64, f64),
+    scale: ColourScale,
     title: &str,
     caption: &str,
 ) -> RgbImage {
@@ -126,7 +129,7 @@ pub fn render_panel(
                 let k = j * nx + i;
                 let rgb = match wet {
                     Some(w) if !w[k] => LAND_RGB,
-                    _ => lut.get(normalise(tile.values[k], lo, hi, ColourScale::Linear)),
+                    _ => lut.get(normalise(tile.values[k], lo, hi, scale)),
                 };
                 img.put_pixel(ox + px, oy + py, Rgb(rgb));
             }
@@ -200,12 +203,39 @@ mod tests {
                 lines: vec![format!("tile {k}")],
             })
             .collect();
-        let img = render_panel(40, 20, None, &tiles, (0.0, 799.0), "t", "c");
+        let img = render_panel(40, 20, None, &tiles, (0.0, 799.0), ColourScale::Linear, "t", "c");
         assert_eq!((img.width(), img.height()), (lay.width, lay.height));
         for &(x, y) in &lay.origins {
             // Bottom-left of a tile is the south-west cell (value 0, darkest).
             let p = img.get_pixel(x, y + lay.tile_h - 1).0;
             assert_ne!(p, BACKGROUND);
         }
+    }
+
+    #[test]
+    fn log_panel_shows_a_faint_plume_that_linear_hides() {
+        // A plume at 1e-3 of the peak: on a linear scale from 0 it is 0.1 % of the ramp (the
+        // bottom colour, as the background water); on the frames' log scale (four decades
+        // under the peak, DESIGN §5 frames) it sits a quarter of the way up.
+        let (nx, ny) = (20, 10);
+        let mut vals = vec![0.0; nx * ny];
+        vals[5 * nx + 15] = 1.0; // the peak
+        vals[5 * nx + 4] = 1e-3; // the faint plume, cell (4, 5)
+        let tiles = [Tile {
+            values: &vals,
+            lines: vec![],
+        }];
+        let lay = panel_layout(1, nx, ny);
+        let (ox, oy) = lay.origins[0];
+        let k = lay.tile_w / nx as u32;
+        // Centre of cell (4, 5): column 4, row ny - 1 - 5 from the top.
+        let (px, py) = (ox + 4 * k + k / 2, oy + (ny as u32 - 1 - 5) * k + k / 2);
+        let (wx, wy) = (ox + k / 2, oy + k / 2); // cell (0, ny - 1): background water
+        let lin = render_panel(nx, ny, None, &tiles, (0.0, 1.0), ColourScale::Linear, "t", "c");
+        let (a, b) = (lin.get_pixel(px, py).0, lin.get_pixel(wx, wy).0);
+        assert!(a.iter().zip(b).all(|(x, y)| x.abs_diff(y) <= 2), "{a:?} {b:?}");
+        let log = render_panel(nx, ny, None, &tiles, (1e-4, 1.0), ColourScale::Log, "t", "c");
+        assert_ne!(log.get_pixel(px, py), log.get_pixel(wx, wy));
+        assert_eq!(log.get_pixel(px, py).0, RampLut::new(Ramp::Sequential).get(0.25));
     }
 }

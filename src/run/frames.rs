@@ -5,7 +5,7 @@
 
 use crate::output::animation::{gif_frame, GifFrame, GifPalette};
 use crate::output::colour::{ColourScale, Ramp};
-use crate::output::{self, FrameSpec, OutputError, FILL_VALUE};
+use crate::output::{self, Extent, FrameSpec, Marker, OutputError, FILL_VALUE};
 use crate::scenario::Scenario;
 use image::RgbImage;
 use rayon::prelude::*;
@@ -43,6 +43,10 @@ pub struct FrameStyle<'a> {
     pub title: &'a str,
     /// Also reduce every frame for `animation.gif`.
     pub animate: bool,
+    /// The grid's extent, m (axes, scale bar).
+    pub extent: Extent,
+    /// Sources and receptors drawn on every frame and the envelope.
+    pub markers: Vec<Marker>,
 }
 
 /// Draws frames `00000.png ..` into `frames_dir` from the first `count` records of the finished
@@ -108,6 +112,8 @@ fn draw_frame(path: &Path, t: f64, values: &[f64], style: &FrameStyle) -> Result
         scale: scn.output.colour,
         range: style.range,
         title: Some(style.title),
+        extent: Some(style.extent),
+        markers: &style.markers,
     };
     let img = output::render_frame(&spec)?;
     output::maps::save(path, &img)?;
@@ -133,6 +139,8 @@ pub fn write_envelope_png(scn: &Scenario, c_max: &[f64], style: &FrameStyle, pat
         ramp: Ramp::Sequential,
         caption: &caption,
         title: &title,
+        extent: Some(style.extent),
+        markers: &style.markers,
     };
     output::maps::write_scalar_png(path, &map)
 }

@@ -8,6 +8,7 @@ pub mod cost;
 pub mod envelope;
 pub mod exceedance;
 pub mod frames;
+pub mod markers;
 pub mod plots;
 pub mod receptors;
 pub mod summary;
@@ -261,6 +262,8 @@ pub fn execute(
         range: frames::run_range(scn, envelope.peak(&wet), lowest),
         title: &title,
         animate: scn.output.animation,
+        extent: markers::extent(&grid),
+        markers: markers::markers(scn),
     };
     let gif = frames::render_frames(&nc_path, &frames_dir, written, &style)?;
     frames::write_envelope_png(scn, &envelope.c_max, &style, &dir.join("envelope.png"))?;

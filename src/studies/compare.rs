@@ -23,6 +23,7 @@ use crate::ops::limiter::Limiter;
 use crate::output::chart::{Axis, Chart, Line};
 use crate::output::plot::{self, Tile};
 use crate::output::write_atomic;
+use crate::output::ColourScale;
 use crate::scenario::Scenario;
 use crate::step::TimeScheme;
 use rayon::prelude::*;
@@ -149,6 +150,8 @@ pub struct CompareReport {
     fields: Vec<Vec<f64>>,
     section: Option<Section>,
     units: String,
+    colour: ColourScale,
+    range: Option<(f64, f64)>,
 }
 
 impl CompareReport {
@@ -355,6 +358,8 @@ pub fn compare(
         fields: records.into_iter().map(|r| r.field).collect(),
         section: opts.section,
         units: scn.tracer.units.clone(),
+        colour: scn.output.colour,
+        range: scn.output.range,
     })
 }
 
@@ -417,8 +422,29 @@ pub fn write_compare(report: &CompareReport, dir: &Path) -> Result<Vec<PathBuf>,
         .copied()
         .fold(f64::NEG_INFINITY, f64::max);
     let title = format!("{}: schemes against {}", report.scenario, report.reference.label);
-    let caption = format!("concentration [{}], one colour scale for every tile", report.units);
-    let panel = plot::render_panel(g.nx, g.ny, Some(&report.wet), &tiles, (lo, hi), &title, &caption);
+    // The run's colour choice: a fixed output.range when set; a log scale spans four decades
+    // under the peak, as the frames do.
+    let (lo, hi) = match (report.range, report.colour) {
+        (Some(r), _) => r,
+        (None, ColourScale::Log) if hi > 0.0 => (hi * 1e-4, hi),
+        _ => (lo, hi),
+    };
+    let log = if report.colour == ColourScale::Log {
+        ", log scale"
+    } else {
+        ""
+    };
+    let caption = format!("concentration [{}]{log}, one colour scale for every tile", report.units);
+    let panel = plot::render_panel(
+        g.nx,
+        g.ny,
+        Some(&report.wet),
+        &tiles,
+        (lo, hi),
+        report.colour,
+        &title,
+        &caption,
+    );
     let p_panel = dir.join("panel.png");
     plot::write_png(&p_panel, &panel)?;
 

@@ -1,9 +1,12 @@
 //! PNG concentration frames: a north-up map of the field, a colour bar with
 //! tick labels, the tracer name with units, the simulated time and an
-//! optional title.
+//! optional title; with a geographic extent, axes in metres, a scale bar, a north arrow
+//! and source and receptor markers (drawn by [`decor`](super::decor)).
 //!
 //! Layout (see [`frame_layout`]): a title band on top (always reserved, so
-//! every frame of a run has the same size), the map centred below it, then a
+//! every frame of a run has the same size), the map below it with room on its left for the
+//! y-axis labels, a band for the x-axis labels, a band for the scale bar and north arrow
+//! (both bands reserved whether or not an extent is given), then a
 //! strip with the colour bar, its tick labels and one caption line holding
 //! `tracer [units]` on the left and `t = ...` on the right. Image width and
 //! height are even, so frame sequences can be assembled into animations by common encoders.
@@ -21,12 +24,18 @@ pub use self::labels::format_time;
 pub use self::render::{render_frame, write_frame_png};
 
 use super::colour::ColourScale;
+use super::decor::{Extent, Marker};
 
 /// Background colour of the frame outside the map.
 const BACKGROUND: [u8; 3] = [255, 255, 255];
-/// Colour of text, ticks and outlines.
-/// Side margin in pixels.
+/// Right margin in pixels.
 const MARGIN: u32 = 24;
+/// Room left of the map for the y-axis tick labels.
+pub(crate) const AXIS_LEFT: u32 = 76;
+/// Band under the map for the x-axis ticks and labels.
+pub(crate) const AXIS_BAND: u32 = 22;
+/// Band under the axis labels for the scale bar and the north arrow.
+pub(crate) const DECOR_BAND: u32 = 30;
 /// Height of the title band above the map.
 const TITLE_BAND: u32 = 44;
 /// Minimum image width, so the colour bar and labels always fit.
@@ -72,6 +81,11 @@ pub struct FrameSpec<'a> {
     pub range: Option<(f64, f64)>,
     /// Title drawn at the top (e.g. the scenario name).
     pub title: Option<&'a str>,
+    /// Outer cell edges in metres; `Some` draws axes, scale bar and north arrow.
+    pub extent: Option<Extent>,
+    /// Sources and receptors drawn on the map (only with an extent; points outside it are
+    /// skipped).
+    pub markers: &'a [Marker],
 }
 
 /// Pixel geometry of a frame.
@@ -89,6 +103,8 @@ pub struct FrameLayout {
     pub map_w: u32,
     /// Map area height.
     pub map_h: u32,
+    /// Top of the strip under the map's axis and scale-bar bands (colour bar, legend).
+    pub strip_y: u32,
 }
 
 /// Geometry of the strip below the map (private; tests use it).
@@ -103,7 +119,7 @@ struct Strip {
 
 impl FrameLayout {
     fn strip(&self) -> Strip {
-        let bar_y = self.map_y + self.map_h + BAR_GAP;
+        let bar_y = self.strip_y + BAR_GAP;
         let tick_label_y = bar_y + BAR_H + TICK_LEN + 1;
         Strip {
             bar_x: BAR_INSET,
@@ -140,11 +156,12 @@ fn map_size(nx: usize, ny: usize) -> (u32, u32) {
 /// as one). Independent of the title, so all frames of a run match.
 pub fn frame_layout(nx: usize, ny: usize) -> FrameLayout {
     let (map_w, map_h) = map_size(nx, ny);
-    let mut width = (map_w + 2 * MARGIN).max(MIN_WIDTH);
+    let mut width = (map_w + AXIS_LEFT + MARGIN).max(MIN_WIDTH);
     width += width % 2;
-    let map_x = (width - map_w) / 2;
+    let map_x = AXIS_LEFT + (width - AXIS_LEFT - MARGIN - map_w) / 2;
     let map_y = TITLE_BAND;
-    let mut height = map_y + map_h + BAR_GAP + BAR_H + TICK_LEN + 1 + TICK_LINE + CAPTION_GAP + CAPTION_LINE + BOTTOM;
+    let strip_y = map_y + map_h + AXIS_BAND + DECOR_BAND;
+    let mut height = strip_y + BAR_GAP + BAR_H + TICK_LEN + 1 + TICK_LINE + CAPTION_GAP + CAPTION_LINE + BOTTOM;
     height += height % 2;
     FrameLayout {
         width,
@@ -153,5 +170,6 @@ pub fn frame_layout(nx: usize, ny: usize) -> FrameLayout {
         map_y,
         map_w,
         map_h,
+        strip_y,
     }
 }

@@ -1,5 +1,6 @@
 //! Drawing a frame: the colour-bar range, input checks, the map (north up, scaled or
-//! sampled), the colour bar with its ticks, the caption and title, and the PNG file.
+//! sampled), the colour bar with its ticks, the caption and title, the axes, scale bar, north
+//! arrow and markers when an extent is given, and the PNG file.
 
 use std::path::{Path, PathBuf};
 
@@ -7,6 +8,7 @@ use image::RgbImage;
 use rayon::prelude::*;
 
 use super::super::colour::{normalise, ColourScale, Ramp, RampLut, LAND_RGB};
+use super::super::decor::{draw_decor, draw_markers};
 use super::super::draw::{outline_ink as draw_rect_outline, put, INK};
 use super::super::text::{draw_text, text_width};
 use super::super::OutputError;
@@ -193,6 +195,11 @@ fn render_inner(spec: &FrameSpec) -> Result<RgbImage, String> {
         CAPTION_PX,
         INK,
     );
+
+    if let Some(extent) = spec.extent {
+        draw_decor(&mut img, &layout, &extent);
+        draw_markers(&mut img, &layout, &extent, spec.markers);
+    }
 
     if let Some(title) = spec.title {
         let w = text_width(title, TITLE_PX);

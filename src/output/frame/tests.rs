@@ -20,6 +20,8 @@ fn spec<'a>(nx: usize, ny: usize, values: &'a [f64], wet: Option<&'a [bool]>) ->
         scale: ColourScale::Linear,
         range: None,
         title: Some("harbour test"),
+        extent: None,
+        markers: &[],
     }
 }
 
