@@ -293,6 +293,8 @@ pub fn execute(
         summary.exceedance = e.figures(&envelope.c_max, |i, j| grid.centre(i, j));
         summary.files.push("exceedance.csv".into());
     }
+    summary.files.push(crate::report::REPORT_FILE.into());
+    crate::report::write_run_report(&dir, scn, &summary)?;
     let json = serde_json::to_string_pretty(&summary).expect("summary serialises");
     output::write_atomic(&dir.join("summary.json"), json.as_bytes())?;
     let outcome = RunOutcome { dir, summary };
