@@ -173,8 +173,23 @@ pub fn write_compare_report(dir: &Path, report: &CompareReport, scn: &Scenario) 
 }
 
 /// Advice on one quantity's finest triple, in words.
-fn gci_advice(name: &str, g: &crate::diagnostics::gci::Gci) -> String {
+pub(crate) fn gci_advice(name: &str, g: &crate::diagnostics::gci::Gci) -> String {
+    if name == "l1" {
+        // The error against the exact solution: its order is the answer, not its GCI.
+        return format!(
+            "l1 (error against the exact solution): {} on the finest grid, falling with observed order {} ({}).",
+            num(g.f[0]),
+            g.p.map_or_else(|| "-".into(), num),
+            g.convergence.word()
+        );
+    }
     match (&g.convergence, g.gci_fine21) {
+        (Convergence::Monotonic, Some(gci)) if gci > 0.1 => format!(
+            "{name}: converges monotonically (observed order {}), but the GCI of the finest grid is {}%: \
+             the grids are too coarse to quote this value; refine further.",
+            g.p.map_or_else(|| "-".into(), num),
+            num(100.0 * gci)
+        ),
         (Convergence::Monotonic, Some(gci)) => format!(
             "{name}: converges monotonically (observed order {}); the finest grid's value {} is within about {}% \
              of the grid-independent value (GCI).",

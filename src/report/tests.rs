@@ -70,3 +70,31 @@ fn a_missing_or_foreign_picture_is_left_out() {
     std::fs::write(&fake, b"not a png").unwrap();
     assert_eq!(figure(&fake, "a", "b"), "");
 }
+
+fn triple(f1: f64, gci: f64) -> crate::diagnostics::gci::Gci {
+    crate::diagnostics::gci::Gci {
+        f: [f1, 0.95, 0.9],
+        h: [1.0, 2.0, 4.0],
+        r21: 2.0,
+        r32: 2.0,
+        convergence: crate::diagnostics::gci::Convergence::Monotonic,
+        p: Some(1.8),
+        extrapolated: Some(1.0),
+        e_a21: Some(0.05),
+        e_ext21: Some(0.02),
+        gci_fine21: Some(gci),
+    }
+}
+
+#[test]
+fn convergence_advice_does_not_quote_a_value_the_grids_cannot_support() {
+    // Celik et al. (2008): the GCI is the uncertainty band of the finest value; a band above
+    // 10% is too wide to quote the value (common practice).
+    let fine = studies::gci_advice("max", &triple(0.98, 0.02));
+    assert!(fine.contains("within about 2%"), "{fine}");
+    let coarse = studies::gci_advice("max", &triple(0.98, 0.5));
+    assert!(coarse.contains("too coarse") && !coarse.contains("within"), "{coarse}");
+    // The L1 error against an exact solution is reported by its order, not by a GCI.
+    let l1 = studies::gci_advice("l1", &triple(0.005, 1.5));
+    assert!(l1.contains("observed order 1.8") && !l1.contains("GCI"), "{l1}");
+}
