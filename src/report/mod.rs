@@ -55,9 +55,11 @@ table { border-collapse: collapse; margin: 0.5rem 0 1rem; font-size: 0.92rem;
   break-inside: avoid; }
 caption { text-align: left; font-weight: 600; padding: 0.2rem 0; }
 th, td { padding: 0.28rem 0.6rem; border-bottom: 1px solid #dfe5ea; vertical-align: top; }
-td:first-child { min-width: 8rem; }
+td:first-child { white-space: nowrap; }
 th { text-align: left; background: #f1f4f7; font-weight: 600; }
-td.n, th.n { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
+td.n, th.n { text-align: right; font-variant-numeric: tabular-nums; }
+td.n { white-space: nowrap; }
+.wide { overflow-x: auto; }
 dl.facts { display: grid; grid-template-columns: max-content 1fr; gap: 0.2rem 1.2rem;
   margin: 0.5rem 0 1rem; }
 dl.facts dt { font-weight: 600; color: #38434f; }
@@ -95,6 +97,12 @@ pub fn esc(s: &str) -> String {
 /// `-` when not finite.
 pub fn num(x: f64) -> String {
     if x.is_finite() {
+        // sig keeps every integer digit from 1000 up: round those to three figures too.
+        let e = if x == 0.0 { 0 } else { x.abs().log10().floor() as i32 };
+        if (3..6).contains(&e) {
+            let f = 10f64.powi(e - 2);
+            return format!("{}", (x / f).round() * f);
+        }
         crate::diagnostics::advice::sig(x, 3)
     } else {
         "-".into()
@@ -126,6 +134,28 @@ pub fn mass_unit(units: &str) -> String {
         "ug/m3" | "ng/l" => "µg".into(),
         _ => format!("{units} × m³"),
     }
+}
+
+/// A released mass in words, in the largest of t, kg, g, mg and µg that keeps the number at
+/// least 1 when the concentration unit names a mass per volume (`5e6` with `ug/L` gives
+/// `5 kg`), else in `units × m³`.
+pub fn mass_words(value: f64, units: &str) -> String {
+    let unit = mass_unit(units);
+    let to_kg = match unit.as_str() {
+        "kg" => 1.0,
+        "g" => 1e-3,
+        "mg" => 1e-6,
+        "µg" => 1e-9,
+        _ => return format!("{} {unit}", num(value)),
+    };
+    let kg = value * to_kg;
+    let scales = [(1e3, "t"), (1.0, "kg"), (1e-3, "g"), (1e-6, "mg"), (1e-9, "µg")];
+    let (f, u) = scales
+        .iter()
+        .copied()
+        .find(|(f, _)| kg.abs() >= *f)
+        .unwrap_or((1e-9, "µg"));
+    format!("{} {u}", num(kg / f))
 }
 
 /// The whole page: `title`, the stylesheet and `body` (already HTML).
@@ -181,7 +211,7 @@ pub(crate) fn figure(path: &Path, alt: &str, caption: &str) -> String {
 /// A table: `head` (column titles, `true` for numeric columns) and rows of already escaped
 /// cells.
 pub(crate) fn table(caption: Option<&str>, head: &[(&str, bool)], rows: &[Vec<String>]) -> String {
-    let mut o = String::from("<table>");
+    let mut o = String::from("<div class=\"wide\"><table>");
     if let Some(c) = caption {
         let _ = write!(o, "<caption>{}</caption>", esc(c));
     }
@@ -198,7 +228,7 @@ pub(crate) fn table(caption: Option<&str>, head: &[(&str, bool)], rows: &[Vec<St
         }
         o.push_str("</tr>");
     }
-    o.push_str("</tbody></table>\n");
+    o.push_str("</tbody></table></div>\n");
     o
 }
 

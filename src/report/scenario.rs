@@ -1,7 +1,7 @@
 //! The scenario in words for the run report: grid, depth, flow, tracer, releases, sides,
 //! initial field, scheme and run length, each from the validated [`Scenario`].
 
-use super::{esc, facts, mass_unit, num, time};
+use super::{esc, facts, mass_unit, mass_words, num, time};
 use crate::depth::Depth;
 use crate::flow::FlowKind;
 use crate::initial::Initial;
@@ -66,18 +66,17 @@ fn flow(scn: &Scenario) -> String {
                 .iter()
                 .map(|o| {
                     format!(
-                        "{} in the {} side from {} to {} m, {} m³/s{}",
+                        "{} in the {} side from {} to {} m, {}",
                         o.name,
                         o.side.name(),
                         num(o.from),
                         num(o.to),
-                        num(o.discharge),
                         if o.discharge > 0.0 {
-                            " in"
+                            format!("{} m³/s in", num(o.discharge))
                         } else if o.discharge < 0.0 {
-                            " (out)"
+                            format!("{} m³/s out", num(-o.discharge))
                         } else {
-                            ""
+                            "no through-flow".to_string()
                         }
                     )
                 })
@@ -99,7 +98,7 @@ fn flow(scn: &Scenario) -> String {
 fn release(src: &crate::ops::sources::SourceSpec, units: &str, end: f64) -> String {
     let mu = mass_unit(units);
     let how = match src.release {
-        Release::Instant { mass, at } => format!("{} {mu} at once at {}", num(mass), time(at)),
+        Release::Instant { mass, at } => format!("{} at once at {}", mass_words(mass, units), time(at)),
         Release::Continuous { rate, start, stop } => {
             let until = if stop.is_finite() && stop < end {
                 time(stop)

@@ -11,12 +11,28 @@ fn text_is_escaped() {
 }
 
 #[test]
+fn numbers_keep_three_significant_figures() {
+    // Three significant figures for every magnitude (common practice).
+    assert_eq!(num(90368.0), "90400");
+    assert_eq!(num(1234.5), "1230");
+    assert_eq!(num(3.0712), "3.07");
+    assert_eq!(num(0.12102), "0.121");
+    assert_eq!(num(2.0e6), "2.00e6");
+    assert_eq!(num(f64::NAN), "-");
+}
+
+#[test]
 fn mass_units_follow_the_concentration_units() {
     // 1 L = 1e-3 m3 (SI), so mg/L x m3 = g.
     assert_eq!(mass_unit("kg/m3"), "kg");
     assert_eq!(mass_unit("mg/L"), "g");
     assert_eq!(mass_unit("ug/L"), "mg");
     assert_eq!(mass_unit("degC"), "degC × m³");
+    // 5e6 mg = 5 kg; 2.5e6 g = 2.5 t (SI prefixes).
+    assert_eq!(mass_words(5.0e6, "ug/L"), "5 kg");
+    assert_eq!(mass_words(2.5e6, "g/m3"), "2.5 t");
+    assert_eq!(mass_words(0.004, "kg/m3"), "4 g");
+    assert_eq!(mass_words(3.0, "degC"), "3 degC × m³");
 }
 
 fn beach(arrival: Option<f64>) -> ReceptorStats {
