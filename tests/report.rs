@@ -389,3 +389,33 @@ fn chromium_renders_and_prints_the_run_report() {
     // The embedded pictures alone weigh tens of kilobytes.
     assert!(bytes.len() > 30_000, "{} bytes", bytes.len());
 }
+
+#[test]
+fn the_run_report_gives_the_flushing_time_of_summary_json() {
+    // A basin that starts uniformly dyed, with no release: the report quotes the e-folding
+    // time that summary.json holds (definition: Monsen et al. 2002; common practice).
+    let dir = tempfile::tempdir().unwrap();
+    let start = BASIN.find("[[source]]").unwrap();
+    let end = BASIN.find("[[receptor]]").unwrap();
+    let text = format!(
+        "{}[initial]\nkind = \"uniform\"\nvalue = 10.0\n{}",
+        &BASIN[..start],
+        &BASIN[end..]
+    );
+    std::fs::write(dir.path().join("flush.toml"), text).unwrap();
+    let o = tinct(
+        &["run", "flush.toml", "--out", "out", "--quiet", "--set", "run.end=18000"],
+        dir.path(),
+    );
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let run = dir.path().join("out/small-basin");
+    let summary: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(run.join("summary.json")).unwrap()).unwrap();
+    let e = summary["flushing"]["e_folding_time"]
+        .as_f64()
+        .expect("e-folding time reached");
+    let p = parse(&run.join("report.html"));
+    check_common(&p);
+    let sentence = format!("fell to 1/e (37%) of its start after {}", tinct::output::format_time(e));
+    assert!(p.text.contains(&sentence), "{sentence}");
+}

@@ -83,7 +83,7 @@ fn flushing_sentence(s: &RunSummary) -> String {
     if f.fitted_rate > 0.0 {
         let _ = write!(
             t,
-            "; an exponential fit gives {} (fit R² {})",
+            "; an exponential fit gives an e-folding time of {} (fit R² {})",
             time(1.0 / f.fitted_rate),
             num(f.fit_r2)
         );
@@ -99,8 +99,12 @@ fn flushing_sentence(s: &RunSummary) -> String {
         );
     }
     t.push('.');
-    if !f.note.is_empty() {
-        let _ = write!(t, " {}", f.note);
+    // The note explains why the two estimates differ; without a tide it repeats the above.
+    if f.prism_estimate.is_some() && !f.note.is_empty() {
+        let mut c = f.note.chars();
+        if let Some(first) = c.next() {
+            let _ = write!(t, " {}{}", first.to_uppercase(), c.as_str());
+        }
     }
     t
 }
