@@ -118,7 +118,8 @@ pub fn main(a: CompareArgs) -> Result<(), Failure> {
         }
     };
     let report = compare(&scn, &opts, &on_done).map_err(study_failure)?;
-    let written = write_compare(&report, &dir).map_err(study_failure)?;
+    let mut written = write_compare(&report, &dir).map_err(study_failure)?;
+    written.push(tinct::report::write_compare_report(&dir, &report, &scn).map_err(|e| failed(e.to_string()))?);
     println!("scenario {}: {}", report.scenario, report.reference.description);
     if let Some(src) = report.reference.source {
         println!("exact solution: {src}");

@@ -2,7 +2,7 @@
 //! three-grid results of Celik et al. (2008); writes `<out>/<name>/converge/`.
 
 use super::compare::study_failure;
-use super::{bad_input, fmt_t, Failure};
+use super::{bad_input, failed, fmt_t, Failure};
 use std::path::PathBuf;
 use tinct::studies::converge::{converge, write_converge, ConvergeOptions};
 
@@ -67,7 +67,8 @@ pub fn main(a: ConvergeArgs) -> Result<(), Failure> {
         }
     };
     let report = converge(&scn, &opts, &mut on_level).map_err(study_failure)?;
-    let written = write_converge(&report, &dir).map_err(study_failure)?;
+    let mut written = write_converge(&report, &dir).map_err(study_failure)?;
+    written.push(tinct::report::write_converge_report(&dir, &report, &scn).map_err(|e| failed(e.to_string()))?);
     println!("scenario {}", report.scenario);
     for n in &report.notes {
         println!("{n}");

@@ -88,8 +88,8 @@ pub fn render_frames(
         if style.animate {
             let pal = palette.get_or_insert_with(|| GifPalette::learn(&drawn[0]));
             for (img, k) in drawn.iter().zip(k0..) {
-                let f = gif_frame(img, pal)
-                    .map_err(|m| OutputError::invalid(frames_dir.join(format!("{k:05}.png")), m))?;
+                let f =
+                    gif_frame(img, pal).map_err(|m| OutputError::invalid(frames_dir.join(format!("{k:05}.png")), m))?;
                 gif.push(f);
             }
         }

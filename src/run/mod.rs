@@ -299,8 +299,13 @@ pub fn execute(
         summary.exceedance = e.figures(&envelope.c_max, |i, j| grid.centre(i, j));
         summary.files.push("exceedance.csv".into());
     }
+    // Charts and the report; summary.json is written even when they fail.
+    let extras = Instant::now();
+    let pictures = write_charts_and_report(scn, &dir, &rows, &receptors, exceed.as_ref(), &mut summary);
+    summary.output_seconds += extras.elapsed().as_secs_f64();
     let json = serde_json::to_string_pretty(&summary).expect("summary serialises");
     output::write_atomic(&dir.join("summary.json"), json.as_bytes())?;
+    pictures?;
     let outcome = RunOutcome { dir, summary };
     match failure {
         None => Ok(outcome),
@@ -309,6 +314,76 @@ pub fn execute(
             outcome: Box::new(outcome),
         }),
     }
+}
+
+/// `plots/*.png` from the run's series, then `report.html`; adds them to `summary.files`.
+fn write_charts_and_report(
+    scn: &Scenario,
+    dir: &Path,
+    rows: &[BudgetRow],
+    receptors: &ReceptorLog,
+    exceed: Option<&exceedance::Exceedance>,
+    summary: &mut RunSummary,
+) -> Result<(), OutputError> {
+    let (times, values) = receptors.times_and_values();
+    let curves = receptors
+        .stats()
+        .iter()
+        .zip(&values)
+        .map(|(s, v)| plots::ReceptorCurve {
+            name: &s.name,
+            threshold: s.threshold,
+            times: &times,
+            values: v,
+            arrival: s.arrival_time,
+            peak: s.peak,
+            peak_time: s.peak_time,
+        })
+        .collect();
+    let row_times: Vec<f64> = rows.iter().map(|r| r.time).collect();
+    let m0 = rows.first().map_or(0.0, |r| r.mass);
+    let fraction: Vec<f64> = rows.iter().map(|r| r.mass / m0).collect();
+    let flushing = summary.flushing.as_ref().map(|f| plots::FlushingCurve {
+        times: &row_times,
+        fraction: &fraction,
+        rate: f.fitted_rate,
+        e_folding: f.e_folding_time,
+    });
+    let series = exceed.map(|e| e.series());
+    let exceedance = match (exceed, &series) {
+        (Some(e), Some((t, areas))) => Some((
+            &t[..],
+            areas
+                .iter()
+                .enumerate()
+                .map(|(k, a)| {
+                    let t = &e.thresholds[k];
+                    let label = format!("above {} {} ({})", t.value, scn.tracer.units, t.receptors.join(", "));
+                    (label, a.clone())
+                })
+                .collect(),
+        )),
+        _ => None,
+    };
+    let input = plots::RunPlots {
+        scenario: &scn.name,
+        tracer: &scn.tracer.name,
+        units: &scn.tracer.units,
+        scale: scn.output.colour,
+        rows,
+        receptors: curves,
+        flushing,
+        exceedance,
+    };
+    let written = plots::write_run_plots(&dir.join("plots"), &input)?;
+    for p in written {
+        if let Ok(rel) = p.strip_prefix(dir) {
+            summary.files.push(rel.to_string_lossy().replace('\\', "/"));
+        }
+    }
+    summary.files.push(crate::report::REPORT_FILE.into());
+    crate::report::write_run_report(dir, scn, summary)?;
+    Ok(())
 }
 
 /// `budget.csv` with the DESIGN §5 columns.
