@@ -111,6 +111,16 @@ fn time_above_matches_the_steps_and_the_area_series() {
         summary["exceedance"][1]["receptors"],
         serde_json::json!(["pier", "jetty"])
     );
+    // The charts: valid PNGs at least the default chart size, listed in the summary. The cone
+    // starts with tracer and has no sources, so the run is also measured as a flushing run.
+    for name in ["receptors", "budget", "exceedance", "flushing"] {
+        let p = run.join(format!("plots/{name}.png"));
+        let img = image::open(&p).unwrap_or_else(|e| panic!("{}: {e}", p.display()));
+        assert!(img.width() >= 900 && img.height() >= 560, "{name}");
+        let listed = summary["files"].as_array().unwrap();
+        assert!(listed.iter().any(|f| f == &format!("plots/{name}.png")), "{name}");
+    }
+    assert!(run.join("report.html").exists());
 }
 
 #[test]

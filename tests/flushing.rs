@@ -12,6 +12,11 @@ fn run(dir: &std::path::Path, text: &str) -> serde_json::Value {
     let o = tinct(&["run", scn.to_str().unwrap(), "--out", "out", "--quiet"], dir);
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let s = std::fs::read_to_string(dir.join("out/basin/summary.json")).unwrap();
+    // A measured flushing time comes with its chart (common practice: a valid PNG at least
+    // the chart's default size).
+    let chart = dir.join("out/basin/plots/flushing.png");
+    let img = image::open(&chart).unwrap_or_else(|e| panic!("{}: {e}", chart.display()));
+    assert!(img.width() >= 900 && img.height() >= 560);
     serde_json::from_str(&s).unwrap()
 }
 

@@ -29,12 +29,8 @@ impl GifPalette {
     }
 }
 
-/// One frame as palette indices, ready to be written.
-pub struct GifFrame {
-    width: u16,
-    height: u16,
-    indices: Vec<u8>,
-}
+/// One frame as palette indices, already LZW-compressed, ready to be written.
+pub struct GifFrame(gif::Frame<'static>);
 
 fn rgba(img: &RgbImage) -> Vec<u8> {
     let mut v = Vec::with_capacity(img.as_raw().len() / 3 * 4);
@@ -51,7 +47,8 @@ pub fn frame_delay(count: usize) -> u16 {
     (ms / 10).clamp(2, u16::MAX as u32) as u16
 }
 
-/// Maps `img` onto `palette`. Images larger than GIF's 65535 pixels per side are refused.
+/// Maps `img` onto `palette` and compresses it (frames can be prepared in parallel). Images
+/// larger than GIF's 65535 pixels per side are refused.
 pub fn gif_frame(img: &RgbImage, palette: &GifPalette) -> Result<GifFrame, String> {
     let (w, h) = img.dimensions();
     let (Ok(width), Ok(height)) = (u16::try_from(w), u16::try_from(h)) else {
@@ -65,8 +62,15 @@ pub fn gif_frame(img: &RgbImage, palette: &GifPalette) -> Result<GifFrame, Strin
                 .chunks_exact(3)
                 .map(|p| palette.0.index_of(&[p[0], p[1], p[2], 255]) as u8)
         })
-        .collect();
-    Ok(GifFrame { width, height, indices })
+        .collect::<Vec<u8>>();
+    let mut frame = gif::Frame {
+        width,
+        height,
+        buffer: std::borrow::Cow::Owned(indices),
+        ..gif::Frame::default()
+    };
+    frame.make_lzw_pre_encoded();
+    Ok(GifFrame(frame))
 }
 
 /// Writes `frames` (in order, all the same size) with `palette` as a looping GIF at `path`,
@@ -75,8 +79,8 @@ pub fn write_gif(frames: &[GifFrame], palette: &GifPalette, delay: u16, path: &P
     let Some(first) = frames.first() else {
         return Err(OutputError::invalid(path, "no frames to animate"));
     };
-    let (w, h) = (first.width, first.height);
-    if frames.iter().any(|f| (f.width, f.height) != (w, h)) {
+    let (w, h) = (first.0.width, first.0.height);
+    if frames.iter().any(|f| (f.0.width, f.0.height) != (w, h)) {
         return Err(OutputError::invalid(path, "frames differ in size"));
     }
     let colours = palette.0.color_map_rgb();
@@ -85,13 +89,11 @@ pub fn write_gif(frames: &[GifFrame], palette: &GifPalette, delay: u16, path: &P
         enc.set_repeat(gif::Repeat::Infinite).map_err(std::io::Error::other)?;
         for f in frames {
             let frame = gif::Frame {
-                width: w,
-                height: h,
                 delay,
-                buffer: std::borrow::Cow::Borrowed(&f.indices),
-                ..gif::Frame::default()
+                buffer: std::borrow::Cow::Borrowed(&f.0.buffer),
+                ..f.0.clone()
             };
-            enc.write_frame(&frame).map_err(std::io::Error::other)?;
+            enc.write_lzw_pre_encoded_frame(&frame).map_err(std::io::Error::other)?;
         }
         Ok(())
     })

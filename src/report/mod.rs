@@ -132,7 +132,11 @@ pub fn mass_unit(units: &str) -> String {
         "g/m3" | "mg/l" => "g".into(),
         "mg/m3" | "ug/l" => "mg".into(),
         "ug/m3" | "ng/l" => "µg".into(),
-        _ => format!("{units} × m³"),
+        _ => match u.strip_suffix("/m3").or_else(|| u.strip_suffix("/m^3")) {
+            // A count or amount per cubic metre (`CFU/m3` gives `CFU`).
+            Some(m) if !m.trim().is_empty() => m.trim().to_string(),
+            _ => format!("{units} × m³"),
+        },
     }
 }
 

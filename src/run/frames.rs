@@ -87,11 +87,15 @@ pub fn render_frames(
             .collect::<Result<Vec<RgbImage>, OutputError>>()?;
         if style.animate {
             let pal = palette.get_or_insert_with(|| GifPalette::learn(&drawn[0]));
-            for (img, k) in drawn.iter().zip(k0..) {
-                let f =
-                    gif_frame(img, pal).map_err(|m| OutputError::invalid(frames_dir.join(format!("{k:05}.png")), m))?;
-                gif.push(f);
-            }
+            let pal = &*pal;
+            let mapped = drawn
+                .par_iter()
+                .zip(k0..k1)
+                .map(|(img, k)| {
+                    gif_frame(img, pal).map_err(|m| OutputError::invalid(frames_dir.join(format!("{k:05}.png")), m))
+                })
+                .collect::<Result<Vec<GifFrame>, OutputError>>()?;
+            gif.extend(mapped);
         }
         k0 = k1;
     }

@@ -107,14 +107,6 @@ fn scaled(v: &[f64], d: f64) -> Vec<f64> {
     v.iter().map(|x| x / d).collect()
 }
 
-/// The mass unit of a concentration unit: "kg/m3" gives "kg", anything else "<units> m3".
-pub fn mass_units(units: &str) -> String {
-    match units.strip_suffix("/m3").or_else(|| units.strip_suffix("/m^3")) {
-        Some(m) if !m.is_empty() => m.to_string(),
-        _ => format!("{units} m3"),
-    }
-}
-
 /// Concentration against time per receptor, thresholds dashed in the receptor's colour,
 /// arrival and peak marked.
 fn receptor_chart(p: &RunPlots) -> Chart {
@@ -172,7 +164,7 @@ type Term = fn(&BudgetRow) -> f64;
 fn budget_chart(p: &RunPlots) -> Chart {
     let rows = p.rows;
     let (d, unit) = unit_of(rows.iter().map(|r| &r.time));
-    let mu = mass_units(p.units);
+    let mu = crate::report::mass_unit(p.units);
     let mut c = Chart::new(
         format!("{}: mass budget", p.scenario),
         Axis::linear(format!("time [{unit}]")),
@@ -480,9 +472,9 @@ colour = "log"
 
     #[test]
     fn units_and_time_axes() {
-        assert_eq!(mass_units("kg/m3"), "kg");
-        assert_eq!(mass_units("CFU/m3"), "CFU");
-        assert_eq!(mass_units("ppm"), "ppm m3");
+        assert_eq!(crate::report::mass_unit("kg/m3"), "kg");
+        assert_eq!(crate::report::mass_unit("CFU/m3"), "CFU");
+        assert_eq!(crate::report::mass_unit("ppm"), "ppm × m³");
         // Common practice: hours beyond 3 h, minutes beyond 3 min.
         assert_eq!(unit_of(&[0.0, 7200.0]).1, "min");
         assert_eq!(unit_of(&[0.0, 86400.0]).1, "h");
