@@ -70,6 +70,9 @@ pub struct RunSettings {
     pub frames: usize,
     /// Steps between budget log rows (>= 1).
     pub log_every: u64,
+    /// Simulated seconds between checkpoints (`checkpoint.bin`); `None` = about every 60 s of
+    /// wall time. A checkpoint is always written at the end and on interruption.
+    pub checkpoint_every: Option<f64>,
 }
 
 /// `[[receptor]]`: a point where the concentration is recorded.

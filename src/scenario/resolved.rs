@@ -197,6 +197,10 @@ pub(super) fn write(s: &Scenario) -> String {
     line(format!("end = {}", num(s.run.end)));
     line(format!("frames = {}", s.run.frames));
     line(format!("log_every = {}", s.run.log_every));
+    match s.run.checkpoint_every {
+        Some(c) => line(format!("checkpoint_every = {}", num(c))),
+        None => line("# checkpoint_every: about every 60 s of wall time".into()),
+    }
     line(String::new());
     line("[output]".into());
     line(format!("dir = {}", text(&s.output.dir.to_string_lossy())));

@@ -87,7 +87,7 @@ pub(super) const SCHEME: &[&str] = &[
     "max_iterations",
 ];
 /// `[run]` keys.
-pub(super) const RUN: &[&str] = &["end", "frames", "log_every"];
+pub(super) const RUN: &[&str] = &["end", "frames", "log_every", "checkpoint_every"];
 /// `[output]` keys.
 pub(super) const OUTPUT: &[&str] = &["dir", "colour", "range", "animation"];
 

@@ -130,10 +130,19 @@ pub(super) fn run_section(root: Section, p: &mut Problems) -> Option<RunSettings
     } else {
         Some(10)
     };
+    let checkpoint_every = if s.has("checkpoint_every") {
+        Some(positive(s.num("checkpoint_every", p), "run.checkpoint_every", p))
+    } else {
+        None
+    };
     Some(RunSettings {
         end: end?,
         frames: usize::try_from(frames?).ok()?,
         log_every: u64::try_from(log_every?).ok()?,
+        checkpoint_every: match checkpoint_every {
+            Some(v) => Some(v?),
+            None => None,
+        },
     })
 }
 
