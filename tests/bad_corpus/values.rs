@@ -68,8 +68,8 @@ const HUGE_OK: &[&str] = &[
     "source.spread",
 ];
 
-/// Strings that may be empty (names the user chooses that are not folder names, units).
-const EMPTY_OK: &[&str] = &["tracer.units", "source.name", "receptor.name", "flow.opening.name"];
+/// Strings that may be empty (units, which may be left blank for a dimensionless tracer).
+const EMPTY_OK: &[&str] = &["tracer.units"];
 
 /// Out-of-range values per key, beyond negative, zero and huge.
 fn out_of_range(key: &str) -> Vec<Value> {

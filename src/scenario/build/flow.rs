@@ -307,7 +307,11 @@ fn openings(s: &Section, p: &mut Problems) -> Option<Vec<Opening>> {
             Some(None)
         };
         let name = if o.has("name") {
-            o.string("name", p).map(str::to_string)
+            let name = o.string("name", p).map(str::to_string);
+            if let Some(n) = &name {
+                super::sources::blank_name(&o, n, "the opening's label in summary.json and the report", p);
+            }
+            name.filter(|n| !n.trim().is_empty())
         } else {
             Some(format!("opening[{k}]"))
         };

@@ -488,6 +488,21 @@ mod tests {
         }
     }
 
+    /// Found by the bad-input corpus: empty names were accepted (an empty receptors.csv
+    /// column, a blank map label); each is refused naming its key, and a missing name is not.
+    #[test]
+    fn blank_names_are_refused() {
+        let base = "[grid]\nnx = 20\nny = 10\ndx = 1.0\n[run]\nend = 10.0\n[boundary]\nwest = \"open\"\n\
+            [flow]\nkind = \"openings\"\n[[flow.opening]]\nside = \"west\"\nfrom = 0.0\nto = 10.0\n\
+            [[source]]\nat = [5.0, 5.0]\nmass = 1.0\n[[receptor]]\nat = [8.0, 5.0]\n";
+        assert!(keys(base, &[]).is_empty());
+        for key in ["source[0].name", "receptor[0].name", "flow.opening[0].name"] {
+            for blank in ["\"\"", "\"  \""] {
+                assert_eq!(keys(base, &[&format!("{key}={blank}")]), [key], "{key} = {blank}");
+            }
+        }
+    }
+
     #[test]
     fn pair_helper_reports_indices() {
         let mut p = Problems::default();
