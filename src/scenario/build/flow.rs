@@ -2,7 +2,7 @@
 //! kind of each side, with the periodic pairing check).
 
 use super::super::reader::{check, list, suggestion, type_name, Problems, Section};
-use super::limits::{within, MIN_PERIOD};
+use super::limits::{within, DEPTH, MAX_DISCHARGE, MAX_ORIGIN, MAX_SPEED, MIN_PERIOD};
 use super::{optional_table, GridOut, FLOW_KINDS, OPENING, SIDE, SIDES, TIDE};
 use crate::diagnostics::advice::sig;
 use crate::flow::file::FlowFile;
@@ -48,15 +48,25 @@ pub(super) fn flow_section(
         "uniform" => {
             s.check_keys(&keys(&["velocity"]), &ctx, p);
             let (u, v) = if s.has("velocity") {
-                s.pair("velocity", p)?
+                let (u, v) = s.pair("velocity", p)?;
+                (speed(u, "flow.velocity[0]", p), speed(v, "flow.velocity[1]", p))
             } else {
-                (0.0, 0.0)
+                (Some(0.0), Some(0.0))
             };
+            let (u, v) = (u?, v?);
             FlowKind::Uniform { u, v }
         }
         "rotation" => {
             s.check_keys(&keys(&["centre", "period"]), &ctx, p);
-            let centre = s.req_pair("centre", "the centre of rotation [x, y]", p);
+            let centre = s
+                .req_pair("centre", "the centre of rotation [x, y]", p)
+                .and_then(|(x, y)| {
+                    let far = (-MAX_ORIGIN, MAX_ORIGIN);
+                    let why = "the coordinates of the centre of rotation";
+                    let x = within(Some(x), "flow.centre[0]", far, "m", why, p);
+                    let y = within(Some(y), "flow.centre[1]", far, "m", why, p);
+                    Some((x?, y?))
+                });
             let period = within(
                 s.req_num("period", "the period of one turn in seconds", p),
                 "flow.period",
@@ -80,7 +90,11 @@ pub(super) fn flow_section(
                 "the period",
                 p,
             );
-            let speed = if s.has("speed") { s.num("speed", p) } else { Some(1.0) };
+            let speed = if s.has("speed") {
+                s.num("speed", p).and_then(|u| speed(u, "flow.speed", p))
+            } else {
+                Some(1.0)
+            };
             FlowKind::Swirl {
                 period: period?,
                 speed: speed?,
@@ -129,7 +143,11 @@ pub(super) fn flow_section(
         }
         _ => {
             s.check_keys(&keys(&["speed"]), &ctx, p);
-            let speed = if s.has("speed") { s.num("speed", p) } else { Some(1.0) };
+            let speed = if s.has("speed") {
+                s.num("speed", p).and_then(|u| speed(u, "flow.speed", p))
+            } else {
+                Some(1.0)
+            };
             FlowKind::Vortex { speed: speed? }
         }
     };
@@ -160,11 +178,12 @@ pub(super) fn flow_section(
             );
             let phase = if ts.has("phase") { ts.num("phase", p) } else { Some(0.0) };
             let amplitude = if ts.has("amplitude") {
-                check(
+                within(
                     ts.num("amplitude", p),
                     "flow.tide.amplitude",
-                    |a| a >= 0.0,
-                    "a level amplitude >= 0 m",
+                    (0.0, DEPTH.1),
+                    "m",
+                    "the rise and fall of the level, at most the deepest water depth",
                     p,
                 )
             } else {
@@ -201,6 +220,19 @@ pub(super) fn flow_section(
         tide,
         project: project?,
     })
+}
+
+/// A velocity or speed within [`MAX_SPEED`] either way (a step for such speeds would be
+/// vanishingly small and the run would never end).
+fn speed(u: f64, key: &str, p: &mut Problems) -> Option<f64> {
+    within(
+        Some(u),
+        key,
+        (-MAX_SPEED, MAX_SPEED),
+        "m/s",
+        "a water speed; the fastest tidal races run at about 10 m/s",
+        p,
+    )
 }
 
 /// `[[flow.opening]]`: side, from, to, discharge (default 0), share and name.
@@ -244,10 +276,21 @@ fn openings(s: &Section, p: &mut Problems) -> Option<Vec<Opening>> {
         } else {
             None
         };
+        let far = (-MAX_ORIGIN, MAX_ORIGIN);
+        let along = "a coordinate along the side, within any map's extent";
         let from = o.req_num("from", "where the opening starts along its side, m", p);
+        let from = within(from, &o.key("from"), far, "m", along, p);
         let to = o.req_num("to", "where the opening ends along its side, m", p);
+        let to = within(to, &o.key("to"), far, "m", along, p);
         let discharge = if o.has("discharge") {
-            o.num("discharge", p)
+            within(
+                o.num("discharge", p),
+                &o.key("discharge"),
+                (-MAX_DISCHARGE, MAX_DISCHARGE),
+                "m3/s",
+                "the discharge, + into the domain; the largest ocean current carries about 1.5e8 m3/s",
+                p,
+            )
         } else {
             Some(0.0)
         };
@@ -264,7 +307,11 @@ fn openings(s: &Section, p: &mut Problems) -> Option<Vec<Opening>> {
             Some(None)
         };
         let name = if o.has("name") {
-            o.string("name", p).map(str::to_string)
+            let name = o.string("name", p).map(str::to_string);
+            if let Some(n) = &name {
+                super::sources::blank_name(&o, n, "the opening's label in summary.json and the report", p);
+            }
+            name.filter(|n| !n.trim().is_empty())
         } else {
             Some(format!("opening[{k}]"))
         };

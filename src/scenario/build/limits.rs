@@ -107,6 +107,17 @@ pub(super) const MAX_ORIGIN: f64 = 1e9;
 /// Diffusivities `tracer.diffusivity`, m2/s: up to 1e6 (ocean-basin eddy diffusivities are
 /// below about 1e4).
 pub(super) const DIFFUSIVITY: (f64, f64) = (0.0, 1e6);
+/// Largest speed (`flow.velocity` components, `flow.speed`), m/s: a thousand, about three times
+/// the speed of sound in air; the fastest tidal races run at about 10 m/s.
+pub(super) const MAX_SPEED: f64 = 1e3;
+/// Largest `|flow.opening.discharge|`, m3/s: a billion, some five times the transport of the
+/// Antarctic Circumpolar Current (about 1.5e8 m3/s), the largest current on Earth.
+pub(super) const MAX_DISCHARGE: f64 = 1e9;
+/// Largest number of steps a run may take. Far below 2^53 (about 9e15), where `t + dt` stops
+/// differing from `t` in double precision and a run would never reach its end; at a billion
+/// cell updates per second, 1e12 steps take over half an hour on the smallest grid (two cells)
+/// and eight months on 200 by 100 cells.
+pub(super) const MAX_STEPS: f64 = 1e12;
 /// Shortest period (`flow.period`, `flow.tide.period`), s: a microsecond.
 pub(super) const MIN_PERIOD: f64 = 1e-6;
 /// Shortest `tracer.t90`, s: one second.

@@ -262,6 +262,19 @@ fn engine_checks(
                 // Frames land on their times: more frames than steps would force a step per
                 // frame and a picture each (when nothing moves, any step is exact).
                 let steps = (run.end / dt).ceil();
+                if dt.is_finite() && steps > limits::MAX_STEPS {
+                    p.add(
+                        "run.end",
+                        format!(
+                            "{} s at steps of dt = {} s is {} steps, more than {}: the run would never end (the step is set by the flow, the diffusivity and the grid); shorten the run or check the speeds and cell sizes",
+                            sig(run.end, 4),
+                            sig(dt, 4),
+                            sig(steps, 4),
+                            sig(limits::MAX_STEPS, 4)
+                        ),
+                    );
+                    return;
+                }
                 if dt.is_finite() && run.frames as f64 > steps && !many_frames {
                     p.add(
                         "run.frames",
@@ -421,6 +434,74 @@ fn check_point(key: &str, at: (f64, f64), grid: &GridOut, p: &mut Problems) {
 mod tests {
     use super::super::reader::pair;
     use super::*;
+
+    /// The keys of the problems of `text` with `sets`.
+    fn keys(text: &str, sets: &[&str]) -> Vec<String> {
+        let sets: Vec<String> = sets.iter().map(|s| s.to_string()).collect();
+        let opts = super::super::LoadOptions::default();
+        match parse(text, Path::new("t.toml"), &sets, opts) {
+            Ok(_) => vec![],
+            Err(problems) => problems.into_iter().map(|q| q.key).collect(),
+        }
+    }
+
+    /// Values the bad-input corpus (`tests/bad_corpus/`) found accepted: speeds, centres,
+    /// discharges and amplitudes of 1e308, and a run of 1e308 s (each would make the step
+    /// vanish or the run never end); each is refused naming its key.
+    #[test]
+    fn absurd_flow_values_and_endless_runs_are_refused() {
+        let base = "[grid]\nnx = 20\nny = 10\ndx = 1.0\n[run]\nend = 10.0\n";
+        assert!(keys(base, &[]).is_empty());
+        for (sets, key) in [
+            (&["flow.velocity=[1e308, 0.0]"][..], "flow.velocity[0]"),
+            (&["flow.velocity=[0.0, -2e3]"], "flow.velocity[1]"),
+            (
+                &["flow.kind=\"swirl\"", "flow.period=10", "flow.speed=1e308"],
+                "flow.speed",
+            ),
+            (&["flow.kind=\"vortex\"", "flow.speed=-1e308"], "flow.speed"),
+            (
+                &["flow.kind=\"rotation\"", "flow.period=10", "flow.centre=[1e308, 0]"],
+                "flow.centre[0]",
+            ),
+        ] {
+            assert_eq!(keys(base, sets), [key], "{sets:?}");
+        }
+        // Worked by hand: diffusivity 1 m2/s on 1 m cells in still water steps between 0.1 s
+        // (the target 0.4 over twice the diffusion rate 2 /s) and 0.225 s (0.9 of the explicit
+        // limit 1/(2 (1 + 1)), common practice): 1e9 s is at most 1e10 steps and runs, 1e13 s
+        // is at least 4.4e13 steps and does not.
+        let diffusive = format!("{base}[tracer]\ndiffusivity = 1.0\n");
+        assert!(keys(&diffusive, &["run.end=1e9", "run.frames=1"]).is_empty());
+        assert_eq!(keys(&diffusive, &["run.end=1e13", "run.frames=1"]), ["run.end"]);
+        assert_eq!(keys(&diffusive, &["run.end=1e308", "run.frames=1"]), ["run.end"]);
+        let openings = "[grid]\nnx = 20\nny = 10\ndx = 1.0\n[run]\nend = 10.0\n[boundary]\nwest = \"open\"\n\
+            [flow]\nkind = \"openings\"\n[[flow.opening]]\nside = \"west\"\nfrom = 0.0\nto = 10.0\n";
+        assert!(keys(openings, &[]).is_empty());
+        for (set, key) in [
+            ("flow.opening[0].discharge=1e308", "flow.opening[0].discharge"),
+            ("flow.opening[0].to=1e308", "flow.opening[0].to"),
+            ("flow.opening[0].from=-1e308", "flow.opening[0].from"),
+            ("flow.tide={ period = 100.0, amplitude = 1e308 }", "flow.tide.amplitude"),
+        ] {
+            assert_eq!(keys(openings, &[set]), [key], "{set}");
+        }
+    }
+
+    /// Found by the bad-input corpus: empty names were accepted (an empty receptors.csv
+    /// column, a blank map label); each is refused naming its key, and a missing name is not.
+    #[test]
+    fn blank_names_are_refused() {
+        let base = "[grid]\nnx = 20\nny = 10\ndx = 1.0\n[run]\nend = 10.0\n[boundary]\nwest = \"open\"\n\
+            [flow]\nkind = \"openings\"\n[[flow.opening]]\nside = \"west\"\nfrom = 0.0\nto = 10.0\n\
+            [[source]]\nat = [5.0, 5.0]\nmass = 1.0\n[[receptor]]\nat = [8.0, 5.0]\n";
+        assert!(keys(base, &[]).is_empty());
+        for key in ["source[0].name", "receptor[0].name", "flow.opening[0].name"] {
+            for blank in ["\"\"", "\"  \""] {
+                assert_eq!(keys(base, &[&format!("{key}={blank}")]), [key], "{key} = {blank}");
+            }
+        }
+    }
 
     #[test]
     fn pair_helper_reports_indices() {

@@ -76,6 +76,16 @@ pub(super) fn initial_section(root: Section, p: &mut Problems) -> Option<Initial
     })
 }
 
+/// Reports a name that is empty or only blanks; `what` says where the name shows.
+pub(super) fn blank_name(s: &Section, name: &str, what: &str, p: &mut Problems) {
+    if name.trim().is_empty() {
+        p.add(
+            s.key("name"),
+            format!("must not be empty: it is {what}; write a name, or leave the key out for a numbered one"),
+        );
+    }
+}
+
 /// `[[source]]`.
 pub(super) fn source_section(
     root: Section,
@@ -91,6 +101,7 @@ pub(super) fn source_section(
         let s = Section::new(label, t);
         s.check_keys(SOURCE, "in [[source]]", p);
         let name = s.string("name", p).map_or_else(|| label.clone(), str::to_string);
+        blank_name(&s, &name, "the source's label on maps and in summary.json", p);
         if let Some(k) = names.iter().position(|n| *n == name) {
             p.add(s.key("name"), format!("\"{name}\" is already the name of source[{k}]"));
         }
@@ -182,6 +193,7 @@ pub(super) fn receptor_section(root: Section, grid: Option<&GridOut>, p: &mut Pr
         let s = Section::new(label, t);
         s.check_keys(RECEPTOR, "in [[receptor]]", p);
         let name = s.string("name", p).map_or_else(|| label.clone(), str::to_string);
+        blank_name(&s, &name, "the receptor's column in receptors.csv", p);
         if let Some(k) = out.iter().position(|r| r.name == name) {
             p.add(
                 s.key("name"),
