@@ -1,7 +1,7 @@
 //! A run stopped from outside, through the real binary: SIGINT finishes it like a stopped run
 //! (exit 130, `summary.json` status `interrupted`, complete logs, the way to resume on stderr);
 //! `kill -9` leaves the logs complete up to their last row and `summary.json` saying `running`,
-//! and frees the folder for the next run.
+//! and frees the folder for the next run; a second SIGINT ends it at once (exit 130), files complete.
 
 mod common;
 
@@ -120,5 +120,31 @@ fn kill_9_keeps_the_logs_and_frees_the_folder() {
     for e in std::fs::read_dir(&dir).unwrap() {
         let name = e.unwrap().file_name().to_string_lossy().into_owned();
         assert!(!name.contains(".tmp-"), "{name}");
+    }
+}
+
+#[test]
+fn a_second_sigint_ends_the_run_at_once_with_complete_files() {
+    let tmp = tempfile::tempdir().unwrap();
+    let dir = tmp.path().join("o/gaussian-puff");
+    let mut child = start_long_run(tmp.path());
+    wait_for_rows(&dir.join("budget.csv"), 5, &mut child);
+    let pid = libc::pid_t::try_from(child.id()).unwrap();
+    // SAFETY: sends signals to our own child.
+    unsafe {
+        assert_eq!(libc::kill(pid, libc::SIGINT), 0);
+        assert_eq!(libc::kill(pid, libc::SIGINT), 0);
+    }
+    let out = child.wait_with_output().unwrap();
+    assert_eq!(out.status.code(), Some(130), "{}", String::from_utf8_lossy(&out.stderr));
+    assert!(complete_rows(&dir.join("budget.csv")).len() > 5);
+    complete_rows(&dir.join("receptors.csv"));
+    let status = summary(&dir)["status"].as_str().unwrap().to_string();
+    assert!(status == "running" || status == "interrupted", "{status}");
+    for e in std::fs::read_dir(&dir).unwrap() {
+        let name = e.unwrap().file_name().to_string_lossy().into_owned();
+        if !name.starts_with('.') && name.ends_with(".png") {
+            image::load_from_memory(&std::fs::read(dir.join(&name)).unwrap()).unwrap();
+        }
     }
 }
