@@ -1,7 +1,12 @@
 //! `tinct run`: runs a scenario, with a progress bar, and prints the result table.
 
 use super::{bad_input, failed, fmt_t, Failure};
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
+use std::sync::atomic::AtomicBool;
+use std::sync::Arc;
+
+/// Exit code of a run stopped by SIGINT or SIGTERM (128 + SIGINT, as shells report it).
+pub const INTERRUPTED: u8 = 130;
 
 /// Arguments of `tinct run`.
 #[derive(clap::Args)]
@@ -43,12 +48,13 @@ pub fn main(a: RunArgs) -> Result<(), Failure> {
     let path = scenario.as_path();
     let sets = &sets[..];
     use indicatif::{ProgressBar, ProgressStyle};
-    use tinct::run::{execute, RunFailure};
+    use tinct::run::{execute_with, RunFailure, RunOptions};
     let options = tinct::scenario::LoadOptions {
         allow_unstable: force,
         many_frames: all_frames,
     };
     let scn = tinct::scenario::load_with(path, sets, options).map_err(|e| bad_input(e.to_string()))?;
+    let out_arg = out.clone();
     let base = out.unwrap_or_else(|| scn.output.dir.clone());
     let bar = if quiet {
         ProgressBar::hidden()
@@ -89,7 +95,9 @@ pub fn main(a: RunArgs) -> Result<(), Failure> {
             );
         }
     }
-    let result = execute(&scn, &base, &mut on_start, &mut progress);
+    let stop = stop_on_signals().map_err(|e| failed(format!("cannot handle interruption signals: {e}")))?;
+    let options = RunOptions { stop: Some(stop) };
+    let result = execute_with(&scn, &base, &options, &mut on_start, &mut progress);
     bar.finish_and_clear();
     match result {
         Ok(outcome) => {
@@ -97,6 +105,19 @@ pub fn main(a: RunArgs) -> Result<(), Failure> {
             Ok(())
         }
         Err(RunFailure::BadInput(m)) => Err(bad_input(m)),
+        Err(e @ RunFailure::Folder(_)) => Err(bad_input(e.to_string())),
+        Err(RunFailure::Interrupted(outcome)) => {
+            print_outcome(&outcome);
+            Err(Failure {
+                code: INTERRUPTED,
+                message: format!(
+                    "interrupted at t = {}; the results up to then are in {}\ncontinue the run with: {}",
+                    fmt_t(outcome.summary.simulated_time),
+                    outcome.dir.display(),
+                    resume_command(path, out_arg.as_deref(), sets)
+                ),
+            })
+        }
         Err(RunFailure::Output(e)) => Err(failed(format!("writing results: {e}"))),
         Err(RunFailure::Stopped { error, outcome }) => {
             print_outcome(&outcome);
@@ -106,6 +127,40 @@ pub fn main(a: RunArgs) -> Result<(), Failure> {
             )))
         }
     }
+}
+
+/// A stop flag raised by the first SIGINT or SIGTERM; a second one ends the process at once
+/// with exit code 130 (every file in the folder is complete at any moment: logs are appended by
+/// whole rows, the rest is written atomically).
+fn stop_on_signals() -> std::io::Result<Arc<AtomicBool>> {
+    use signal_hook::{consts::TERM_SIGNALS, flag};
+    let stop = Arc::new(AtomicBool::new(false));
+    for &sig in TERM_SIGNALS {
+        // Registered first, so it sees the flag before the second handler raises it.
+        flag::register_conditional_shutdown(sig, i32::from(INTERRUPTED), Arc::clone(&stop))?;
+        flag::register(sig, Arc::clone(&stop))?;
+    }
+    Ok(stop)
+}
+
+/// The command that continues an interrupted run (the arguments that name its scenario and
+/// folder).
+fn resume_command(scenario: &Path, out: Option<&Path>, sets: &[String]) -> String {
+    let quote = |s: &str| {
+        if !s.is_empty() && s.chars().all(|c| c.is_ascii_alphanumeric() || "/._-=+,:".contains(c)) {
+            s.to_string()
+        } else {
+            format!("'{}'", s.replace('\'', "'\\''"))
+        }
+    };
+    let mut cmd = format!("tinct run {} --resume", quote(&scenario.to_string_lossy()));
+    if let Some(o) = out {
+        cmd.push_str(&format!(" --out {}", quote(&o.to_string_lossy())));
+    }
+    for s in sets {
+        cmd.push_str(&format!(" --set {}", quote(s)));
+    }
+    cmd
 }
 
 fn print_outcome(o: &tinct::run::RunOutcome) {

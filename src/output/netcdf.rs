@@ -96,9 +96,10 @@ pub struct FieldsWriter {
 }
 
 /// A buffered file handle shared between this module and the short-lived
-/// `netcdf3::FileWriter`s (which need an owned `'static` sink).
+/// `netcdf3::FileWriter`s (which need an owned `'static` sink). It keeps the last operating-system
+/// error, which `netcdf3` reduces to its kind, so a failed write names it ("File too large").
 #[derive(Debug, Clone)]
-struct SharedSink(Arc<Mutex<BufWriter<File>>>);
+struct SharedSink(Arc<Mutex<BufWriter<File>>>, Arc<Mutex<Option<io::Error>>>);
 
 impl SharedSink {
     fn with<T>(&self, f: impl FnOnce(&mut BufWriter<File>) -> io::Result<T>) -> io::Result<T> {
@@ -106,7 +107,22 @@ impl SharedSink {
             .0
             .lock()
             .map_err(|_| io::Error::other("output file lock poisoned"))?;
-        f(&mut guard)
+        let r = f(&mut guard);
+        if let Err(e) = &r {
+            let copy = match e.raw_os_error() {
+                Some(code) => io::Error::from_raw_os_error(code),
+                None => io::Error::new(e.kind(), e.to_string()),
+            };
+            if let Ok(mut last) = self.1.lock() {
+                *last = Some(copy);
+            }
+        }
+        r
+    }
+
+    /// The operating-system error behind a failed `netcdf3` call, if there was one.
+    fn take_error(&self) -> Option<io::Error> {
+        self.1.lock().ok().and_then(|mut e| e.take())
     }
 }
 
@@ -161,7 +177,10 @@ impl FieldsWriter {
             .open(atomic.path_tmp())
             .map_err(|e| OutputError::io(atomic.path_tmp(), e))?;
         let mut w = FieldsWriter {
-            sink: SharedSink(Arc::new(Mutex::new(BufWriter::with_capacity(1 << 20, file)))),
+            sink: SharedSink(
+                Arc::new(Mutex::new(BufWriter::with_capacity(1 << 20, file))),
+                Arc::new(Mutex::new(None)),
+            ),
             atomic,
             meta: OwnedMeta {
                 name: meta.name.to_string(),
@@ -289,12 +308,15 @@ impl FieldsWriter {
         f: impl FnOnce(&mut FileWriter) -> Result<(), netcdf3::WriteError>,
     ) -> Result<(), OutputError> {
         let target = self.atomic.target().to_path_buf();
-        let mut fw =
-            FileWriter::open_seek_write(&self.atomic.path_tmp().to_string_lossy(), Box::new(self.sink.clone()))
-                .map_err(|e| nc_err(&target, e))?;
-        fw.set_def(ds, Version::Offset64Bit, 0)
-            .map_err(|e| nc_err(&target, e))?;
-        f(&mut fw).map_err(|e| nc_err(&target, e))?;
+        let tmp = self.atomic.path_tmp().to_path_buf();
+        let sink = self.sink.clone();
+        let err = |e: netcdf3::WriteError| match sink.take_error() {
+            Some(os) => OutputError::io(&tmp, os),
+            None => nc_err(&target, e),
+        };
+        let mut fw = FileWriter::open_seek_write(&tmp.to_string_lossy(), Box::new(self.sink.clone())).map_err(err)?;
+        fw.set_def(ds, Version::Offset64Bit, 0).map_err(err)?;
+        f(&mut fw).map_err(err)?;
         // Deliberately not `close()`: it would fill every record this
         // short-lived writer did not see.
         drop(fw);

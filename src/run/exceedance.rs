@@ -211,6 +211,24 @@ impl Exceedance {
         format!("{} ({})", t.value, t.receptors.join(", "))
     }
 
+    /// The header line of `exceedance.csv` (with its newline).
+    pub fn csv_header(&self) -> String {
+        let mut out = String::from("time");
+        for t in &self.thresholds {
+            out.push_str(&format!(",area_above_{}", t.value));
+        }
+        out.push('\n');
+        out
+    }
+
+    /// The last kept row as a line of `exceedance.csv` (with its newline), if there is one.
+    pub fn last_csv_row(&self) -> Option<String> {
+        let w = self.thresholds.len() + 1;
+        let row = self.rows.chunks_exact(w).next_back()?;
+        let line: Vec<String> = row.iter().map(|v| format!("{v:e}")).collect();
+        Some(format!("{}\n", line.join(",")))
+    }
+
     /// `exceedance.csv`: `time` (s), then `area_above_<value>` (m2) per threshold.
     pub fn csv(&self) -> String {
         let w = self.thresholds.len() + 1;

@@ -1,13 +1,17 @@
 //! Running a scenario end to end: builds the model, marches it, and writes every output of
 //! DESIGN §5 into `<dir>/<name>/` (scenario as run, budget log, receptor series, frames,
-//! NetCDF fields, summary). Files are written atomically; a run that diverges still writes what
-//! it has (budget, receptors, fields so far, a summary saying why it stopped). Nothing here
-//! prints: progress goes to a callback.
+//! NetCDF fields, summary). The folder is locked and cleared first ([`folder`]), the logs are
+//! appended row by row as the run goes ([`logs`]) and every other file is written atomically,
+//! so the folder never holds a half-written file under its final name; a run that diverges or
+//! is interrupted still writes what it has (budget, receptors, fields so far, a summary saying
+//! why it stopped). Nothing here prints: progress goes to a callback.
 
 pub mod cost;
 pub mod envelope;
 pub mod exceedance;
+pub mod folder;
 pub mod frames;
+pub mod logs;
 pub mod markers;
 pub mod plots;
 pub mod receptors;
@@ -21,6 +25,8 @@ use crate::RunError;
 use receptors::ReceptorLog;
 use std::ops::ControlFlow;
 use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::Arc;
 use std::time::Instant;
 pub use summary::RunSummary;
 
@@ -51,15 +57,32 @@ pub struct RunOutcome {
     pub summary: RunSummary,
 }
 
+/// How a run is carried out, beyond its scenario.
+#[derive(Debug, Clone, Default)]
+pub struct RunOptions {
+    /// When set (by the CLI's signal handler), the run stops after the step under way and
+    /// finishes like a stopped run: logs, fields and frames so far, `summary.json` with status
+    /// `interrupted` ([`RunFailure::Interrupted`]).
+    pub stop: Option<Arc<AtomicBool>>,
+}
+
 /// Why a run did not complete.
 #[derive(Debug, thiserror::Error)]
 pub enum RunFailure {
     /// The scenario cannot run as written (exit code 2).
     #[error("{0}")]
     BadInput(String),
-    /// An output file could not be written (exit code 1).
+    /// The output folder cannot be created, locked or written; nothing was run (exit code 2).
+    #[error("the output folder cannot be used: {0}")]
+    Folder(#[from] folder::FolderError),
+    /// An output file could not be written during the run (exit code 1). Every file already in
+    /// the folder is complete; `summary.json` says `failed` when it could still be written.
     #[error(transparent)]
     Output(#[from] OutputError),
+    /// The stop flag was raised; the outputs up to the last step were written (the CLI exits
+    /// with 130).
+    #[error("interrupted at t = {} s; the results up to then are in {}", .0.summary.simulated_time, .0.dir.display())]
+    Interrupted(Box<RunOutcome>),
     /// The run diverged or a solve failed; the outputs up to that step were written (exit
     /// code 1).
     #[error("{error}")]
@@ -80,12 +103,28 @@ pub fn standard_name(tracer: &str) -> Option<&'static str> {
     }
 }
 
-/// Runs `scn`, writing into `<out_base>/<name>/`. `on_start` receives the warnings about the
-/// numerical choices once the run is set up (the advice of `tinct check` of severity warning
-/// and above, which includes [`crate::step::scheme_warnings`]); `progress` is called after every step.
+/// Runs `scn`, writing into `<out_base>/<name>/`, with the default [`RunOptions`] (no stop
+/// flag); see [`execute_with`].
 pub fn execute(
     scn: &Scenario,
     out_base: &Path,
+    on_start: &mut dyn FnMut(&[String]),
+    progress: &mut dyn FnMut(Progress),
+) -> Result<RunOutcome, RunFailure> {
+    execute_with(scn, out_base, &RunOptions::default(), on_start, progress)
+}
+
+/// Runs `scn`, writing into `<out_base>/<name>/`. `on_start` receives the warnings about the
+/// numerical choices once the run is set up (the advice of `tinct check` of severity warning
+/// and above, which includes [`crate::step::scheme_warnings`]); `progress` is called after every
+/// step. Before the first step the folder is created, locked ([`folder::lock_folder`]: a second
+/// run into it is refused with [`RunFailure::Folder`]), cleared of an earlier run's files and
+/// marked `running` in `summary.json`; any failure there is [`RunFailure::Folder`]. A write that
+/// fails later is [`RunFailure::Output`], after `summary.json` was set to `failed` if it could be.
+pub fn execute_with(
+    scn: &Scenario,
+    out_base: &Path,
+    options: &RunOptions,
     on_start: &mut dyn FnMut(&[String]),
     progress: &mut dyn FnMut(Progress),
 ) -> Result<RunOutcome, RunFailure> {
@@ -117,8 +156,14 @@ pub fn execute(
     let mut plume = summary::PlumeTrack::new(scn);
     let dir = out_base.join(&scn.name);
     let frames_dir = dir.join("frames");
-    std::fs::create_dir_all(&frames_dir).map_err(|e| OutputError::io(&frames_dir, e))?;
-    output::write_atomic(&dir.join("scenario.toml"), scn.resolved_toml().as_bytes())?;
+    // The folder: every failure up to the first step means it cannot take the run (exit 2).
+    let _lock = folder::lock_folder(&dir)?;
+    let setup = |e: OutputError| RunFailure::Folder(e.into());
+    folder::prepare_folder(&dir, false).map_err(setup)?;
+    let start_summary = folder::StartSummary::new(scn);
+    start_summary.write(&dir).map_err(setup)?;
+    std::fs::create_dir_all(&frames_dir).map_err(|e| setup(OutputError::io(&frames_dir, e)))?;
+    output::write_atomic(&dir.join("scenario.toml"), scn.resolved_toml().as_bytes()).map_err(setup)?;
 
     let wet: Vec<bool> = sim.model.mask.as_slice().to_vec();
     let n_frames = scn.run.frames;
@@ -149,7 +194,7 @@ pub fn execute(
         threshold_comment: &threshold_comment,
     };
     let nc_path = dir.join("fields.nc");
-    let mut fields = FieldsWriter::create(&nc_path, &grid.xs(), &grid.ys(), n_frames + 1, &meta)?;
+    let mut fields = FieldsWriter::create(&nc_path, &grid.xs(), &grid.ys(), n_frames + 1, &meta).map_err(setup)?;
 
     let started = Instant::now();
     // Seconds spent writing outputs, of the wall time.
@@ -158,6 +203,7 @@ pub fn execute(
     let (mut dt_min, mut dt_max) = (f64::INFINITY, 0.0f64);
     let mut iterations = (0usize, 0usize);
     receptors.record(0.0, 0.0, &sim.state.c);
+    let mut logs = logs::RunLogs::create(&dir, &rows, &receptors, exceed.as_ref()).map_err(setup)?;
     let mut envelope = envelope::Envelope::new(&grid, &sim.state.c);
     // A frame's field goes to fields.nc now; its picture is drawn once the run's range is known.
     let write_frame = |sim: &Simulation, fields: &mut FieldsWriter, secs: &mut f64| -> Result<(), OutputError> {
@@ -166,9 +212,20 @@ pub fn execute(
         *secs += t0.elapsed().as_secs_f64();
         r
     };
-    write_frame(&sim, &mut fields, &mut output_seconds)?;
+    write_frame(&sim, &mut fields, &mut output_seconds).map_err(setup)?;
     plume.observe(&grid, sim.state.t, &sim.field(), &wet);
 
+    // From here a write that fails is a failed run (exit 1): summary.json says so if it can.
+    let fail = |e: OutputError| {
+        let mut failed = start_summary.clone();
+        failed.status = "failed".into();
+        failed.error = Some(e.to_string());
+        let _ = failed.write(&dir);
+        RunFailure::Output(e)
+    };
+    let stop = options.stop.clone();
+    let stopped = || stop.as_ref().is_some_and(|f| f.load(Ordering::Relaxed));
+    let mut interrupted = false;
     let end = scn.run.end;
     let log_every = scn.run.log_every.max(1);
     // A mass, residual or value that is not finite fails the run (from the initial state on).
@@ -176,6 +233,7 @@ pub fn execute(
     let mut written = 1;
     for k in (1..=n_frames).take_while(|_| failure.is_none()) {
         let mut bad_row: Option<RunError> = None;
+        let mut write_error: Option<OutputError> = None;
         let target = if k == n_frames {
             end
         } else {
@@ -201,6 +259,10 @@ pub fn execute(
                 if let Some(e) = exceed.as_mut() {
                     e.keep_row(st.t);
                 }
+                if let Err(e) = logs.append_last(&row, &receptors, exceed.as_ref()) {
+                    write_error = Some(e);
+                    return ControlFlow::Break(());
+                }
                 if let Err(e) = s.check_row(&row) {
                     bad_row = Some(e);
                     return ControlFlow::Break(());
@@ -212,107 +274,129 @@ pub fn execute(
                 step: st.step,
                 dt: st.last_dt,
             });
+            if stopped() {
+                interrupted = true;
+                return ControlFlow::Break(());
+            }
             ControlFlow::Continue(())
         });
+        if let Some(e) = write_error {
+            return Err(fail(e));
+        }
         if let Some(e) = bad_row {
             failure = Some(e);
             break;
         }
-        let keep_all =
-            |rows: &mut Vec<BudgetRow>, receptors: &mut ReceptorLog, exceed: &mut Option<exceedance::Exceedance>| {
-                rows.push(sim.budget_row());
-                receptors.keep_row(sim.state.t, &sim.state.c);
-                if let Some(e) = exceed {
-                    e.keep_row(sim.state.t);
-                }
-            };
+        let mut keep_all = |rows: &mut Vec<BudgetRow>,
+                            receptors: &mut ReceptorLog,
+                            exceed: &mut Option<exceedance::Exceedance>|
+         -> Result<(), RunFailure> {
+            let row = sim.budget_row();
+            rows.push(row);
+            receptors.keep_row(sim.state.t, &sim.state.c);
+            if let Some(e) = exceed.as_mut() {
+                e.keep_row(sim.state.t);
+            }
+            logs.append_last(&row, receptors, exceed.as_ref()).map_err(fail)
+        };
         if let Err(e) = res {
-            keep_all(&mut rows, &mut receptors, &mut exceed);
+            keep_all(&mut rows, &mut receptors, &mut exceed)?;
             failure = Some(e);
             break;
         }
         if rows.last().map(|r| r.step) != Some(sim.state.step) {
-            keep_all(&mut rows, &mut receptors, &mut exceed);
+            keep_all(&mut rows, &mut receptors, &mut exceed)?;
+        }
+        if interrupted {
+            // The logs end at the step the run stopped at; no frame for the unfinished interval.
+            // checkpoint: written here by the resume work (the state after this step).
+            if let Some(e) = rows.last().and_then(|r| sim.check_row(r).err()) {
+                failure = Some(e);
+            }
+            break;
         }
         if let Some(e) = rows.last().and_then(|r| sim.check_row(r).err()) {
             failure = Some(e);
             break;
         }
-        write_frame(&sim, &mut fields, &mut output_seconds)?;
+        write_frame(&sim, &mut fields, &mut output_seconds).map_err(fail)?;
         plume.observe(&grid, sim.state.t, &sim.field(), &wet);
         written += 1;
     }
-
     // Logs, fields and pictures: written whether or not the run completed.
-    let writing = Instant::now();
-    output::write_atomic(&dir.join("budget.csv"), budget_csv(&rows).as_bytes())?;
-    output::write_atomic(&dir.join("receptors.csv"), receptors.csv().as_bytes())?;
-    if let Some(e) = &exceed {
-        output::write_atomic(&dir.join("exceedance.csv"), e.csv().as_bytes())?;
-    }
-    fields.write_max(&envelope.c_max, Some(&wet))?;
-    if let Some(e) = &exceed {
-        fields.write_hours_above(&e.hours_above(), Some(&wet))?;
-    }
-    fields.finish()?;
-    let lowest = rows.iter().map(|r| r.min).fold(f64::INFINITY, f64::min);
-    let style = frames::FrameStyle {
-        scn,
-        wet: &wet,
-        range: frames::run_range(scn, envelope.peak(&wet), lowest),
-        title: &title,
-        animate: scn.output.animation,
-        extent: markers::extent(&grid),
-        markers: markers::markers(scn),
+    let finish = || -> Result<(RunSummary, Result<(), OutputError>), OutputError> {
+        let writing = Instant::now();
+        logs.sync()?;
+        fields.write_max(&envelope.c_max, Some(&wet))?;
+        if let Some(e) = &exceed {
+            fields.write_hours_above(&e.hours_above(), Some(&wet))?;
+        }
+        fields.finish()?;
+        let lowest = rows.iter().map(|r| r.min).fold(f64::INFINITY, f64::min);
+        let style = frames::FrameStyle {
+            scn,
+            wet: &wet,
+            range: frames::run_range(scn, envelope.peak(&wet), lowest),
+            title: &title,
+            animate: scn.output.animation,
+            extent: markers::extent(&grid),
+            markers: markers::markers(scn),
+        };
+        let gif = frames::render_frames(&nc_path, &frames_dir, written, &style)?;
+        frames::write_envelope_png(scn, &envelope.c_max, &style, &dir.join("envelope.png"))?;
+        remove_stale_frames(&frames_dir, written);
+        if let Some((palette, gif)) = gif {
+            let delay = output::animation::frame_delay(gif.len());
+            output::animation::write_gif(&gif, &palette, delay, &dir.join("animation.gif"))?;
+        }
+        output_seconds += writing.elapsed().as_secs_f64();
+        let wall = started.elapsed().as_secs_f64();
+        let mut summary = RunSummary::new(
+            scn,
+            &sim,
+            &rows,
+            receptors.stats(),
+            (dt_min, dt_max),
+            wall,
+            written,
+            failure.as_ref(),
+            iterations,
+        );
+        summary.advice = advice;
+        (summary.effective_diffusivity, summary.effective_diffusivity_reason) =
+            plume.finish(sim.model.kx, sim.model.ky);
+        (summary.flushing, summary.flushing_reason) = summary::flushing_of(scn, &sim.model, &rows);
+        summary.output_seconds = output_seconds;
+        let march = wall - output_seconds;
+        summary.cell_updates_per_second = if march > 0.0 {
+            (summary.cells as f64) * (summary.steps as f64) / march
+        } else {
+            0.0
+        };
+        if let Some(e) = &exceed {
+            summary.exceedance = e.figures(&envelope.c_max, |i, j| grid.centre(i, j));
+            summary.files.push("exceedance.csv".into());
+        }
+        if interrupted && failure.is_none() {
+            summary.status = "interrupted".into();
+            summary.error = Some(format!("interrupted by a signal at t = {} s", sim.state.t));
+        }
+        // Charts and the report; summary.json is written even when they fail.
+        let extras = Instant::now();
+        let pictures = write_charts_and_report(scn, &dir, &rows, &receptors, exceed.as_ref(), &mut summary);
+        summary.output_seconds += extras.elapsed().as_secs_f64();
+        let json = serde_json::to_string_pretty(&summary).expect("summary serialises");
+        output::write_atomic(&dir.join("summary.json"), json.as_bytes())?;
+        Ok((summary, pictures))
     };
-    let gif = frames::render_frames(&nc_path, &frames_dir, written, &style)?;
-    frames::write_envelope_png(scn, &envelope.c_max, &style, &dir.join("envelope.png"))?;
-    remove_stale_frames(&frames_dir, written);
-    if let Some((palette, gif)) = gif {
-        let delay = output::animation::frame_delay(gif.len());
-        output::animation::write_gif(&gif, &palette, delay, &dir.join("animation.gif"))?;
-    }
-    output_seconds += writing.elapsed().as_secs_f64();
-    let wall = started.elapsed().as_secs_f64();
-    let mut summary = RunSummary::new(
-        scn,
-        &sim,
-        &rows,
-        receptors.stats(),
-        (dt_min, dt_max),
-        wall,
-        written,
-        failure.as_ref(),
-        iterations,
-    );
-    summary.advice = advice;
-    (summary.effective_diffusivity, summary.effective_diffusivity_reason) = plume.finish(sim.model.kx, sim.model.ky);
-    (summary.flushing, summary.flushing_reason) = summary::flushing_of(scn, &sim.model, &rows);
-    summary.output_seconds = output_seconds;
-    let march = wall - output_seconds;
-    summary.cell_updates_per_second = if march > 0.0 {
-        (summary.cells as f64) * (summary.steps as f64) / march
-    } else {
-        0.0
-    };
-    if let Some(e) = &exceed {
-        summary.exceedance = e.figures(&envelope.c_max, |i, j| grid.centre(i, j));
-        summary.files.push("exceedance.csv".into());
-    }
-    // Charts and the report; summary.json is written even when they fail.
-    let extras = Instant::now();
-    let pictures = write_charts_and_report(scn, &dir, &rows, &receptors, exceed.as_ref(), &mut summary);
-    summary.output_seconds += extras.elapsed().as_secs_f64();
-    let json = serde_json::to_string_pretty(&summary).expect("summary serialises");
-    output::write_atomic(&dir.join("summary.json"), json.as_bytes())?;
+    let (summary, pictures) = finish().map_err(fail)?;
+    // A chart or report that failed: summary.json already holds the run's facts.
     pictures?;
-    let outcome = RunOutcome { dir, summary };
+    let outcome = Box::new(RunOutcome { dir, summary });
     match failure {
-        None => Ok(outcome),
-        Some(error) => Err(RunFailure::Stopped {
-            error,
-            outcome: Box::new(outcome),
-        }),
+        None if interrupted => Err(RunFailure::Interrupted(outcome)),
+        None => Ok(*outcome),
+        Some(error) => Err(RunFailure::Stopped { error, outcome }),
     }
 }
 

@@ -117,6 +117,25 @@ impl ReceptorLog {
         (times, values)
     }
 
+    /// The header line of `receptors.csv` (with its newline).
+    pub fn csv_header(&self) -> String {
+        let mut out = String::from("time");
+        for s in &self.stats {
+            out.push(',');
+            out.push_str(&csv_field(&s.name));
+        }
+        out.push('\n');
+        out
+    }
+
+    /// The last kept row as a line of `receptors.csv` (with its newline), if there is one.
+    pub fn last_csv_row(&self) -> Option<String> {
+        let w = self.stats.len() + 1;
+        let row = self.rows.chunks_exact(w).next_back()?;
+        let line: Vec<String> = row.iter().map(|v| format!("{v:e}")).collect();
+        Some(format!("{}\n", line.join(",")))
+    }
+
     /// `receptors.csv`: `time`, then one column per receptor.
     pub fn csv(&self) -> String {
         let w = self.stats.len() + 1;

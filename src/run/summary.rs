@@ -206,7 +206,7 @@ pub struct RunSummary {
     pub program: String,
     /// Scenario name.
     pub scenario: String,
-    /// `completed`, `diverged` or `not_converged`.
+    /// `completed`, `diverged`, `not_converged` or `interrupted` (a signal stopped the run).
     pub status: String,
     /// Why the run stopped early, if it did.
     pub error: Option<String>,
