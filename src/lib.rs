@@ -31,6 +31,10 @@
 
 pub mod bench;
 pub mod budget;
+/// `checkpoint.bin` (the run layer's; declared here until `run/mod.rs` declares it as
+/// `run::checkpoint`).
+#[path = "run/checkpoint.rs"]
+pub mod checkpoint;
 pub mod depth;
 pub mod diagnostics;
 pub mod error;
