@@ -302,7 +302,24 @@ fn assert_identical(a: &Run, b: &Run, what: &str) {
 /// three quarters, the last step but one), and checks every continuation against the
 /// straight run.
 fn continues_bit_for_bit(scheme: &str) {
-    let scn = parse(&scenario_text(scheme));
+    continues_bit_for_bit_in(scheme, &scenario_text(scheme));
+}
+
+/// The same in a steady flow (no tide): the implicit steppers then reuse their assembled
+/// matrix from step to step within a frame interval, while a restored one assembles afresh.
+fn continues_bit_for_bit_steady(scheme: &str) {
+    let text = scenario_text(scheme);
+    let steady: String = text
+        .lines()
+        .filter(|l| !l.starts_with("tide"))
+        .map(|l| format!("{l}\n"))
+        .collect();
+    assert_ne!(steady, text);
+    continues_bit_for_bit_in(scheme, &steady);
+}
+
+fn continues_bit_for_bit_in(scheme: &str, text: &str) {
+    let scn = parse(text);
     let mut whole = Run::start(&scn);
     assert!(whole.march(&scn, None));
     let n = whole.sim.state.step;
@@ -327,7 +344,7 @@ fn continues_bit_for_bit(scheme: &str) {
             !first.march(&scn, Some(split)),
             "{scheme}: the run stops at step {split}"
         );
-        let file = checkpoint::to_bytes(&first.checkpoint(&scn));
+        let file = checkpoint::to_bytes(&first.checkpoint(&scn)).expect("encodes");
         let ck = checkpoint::from_bytes(&file, Path::new("checkpoint.bin"), &scn).expect("reads back");
         assert_eq!(ck.sim.step, split);
         let mut resumed = Run::resume(&scn, ck);
@@ -352,6 +369,12 @@ fn implicit_backward_euler_with_deferred_correction_continues_bit_for_bit() {
 #[test]
 fn crank_nicolson_with_deferred_correction_continues_bit_for_bit() {
     continues_bit_for_bit("convection = \"minmod\"\ntime = \"crank_nicolson\"\ncourant = 1.0");
+}
+
+#[test]
+fn implicit_and_imex_in_a_steady_flow_continue_bit_for_bit() {
+    continues_bit_for_bit_steady("convection = \"van_leer\"\ntime = \"implicit\"\ncourant = 1.5");
+    continues_bit_for_bit_steady("convection = \"minmod\"\ntime = \"imex\"\ncourant = 0.8");
 }
 
 #[test]
@@ -380,7 +403,12 @@ fn a_split_on_a_frame_time_resumes_with_that_frame() {
     assert!(!first.march(&scn, Some(split)));
     assert_eq!(first.sim.state.t, t1, "stopped exactly on the frame time");
     assert_eq!(first.frames.len(), 1, "the frame at t1 is not written yet");
-    let ck = checkpoint::from_bytes(&checkpoint::to_bytes(&first.checkpoint(&scn)), Path::new("c"), &scn).unwrap();
+    let ck = checkpoint::from_bytes(
+        &checkpoint::to_bytes(&first.checkpoint(&scn)).expect("encodes"),
+        Path::new("c"),
+        &scn,
+    )
+    .unwrap();
     let mut resumed = Run::resume(&scn, ck);
     resumed.march(&scn, None);
     assert_identical(&whole, &resumed, "split on a frame time");
@@ -419,7 +447,7 @@ fn explicit_checkpoint() -> (Scenario, Vec<u8>) {
     let scn = parse(&scenario_text("convection = \"van_leer\"\nstages = 3"));
     let mut run = Run::start(&scn);
     run.march(&scn, Some(12));
-    let file = checkpoint::to_bytes(&run.checkpoint(&scn));
+    let file = checkpoint::to_bytes(&run.checkpoint(&scn)).expect("encodes");
     (scn, file)
 }
 
@@ -545,7 +573,7 @@ fn another_tinct_version_is_refused_saying_which() {
     run.march(&scn, Some(5));
     let mut ck = run.checkpoint(&scn);
     ck.tinct_version = "0.0.1-old".into();
-    let e = checkpoint::from_bytes(&checkpoint::to_bytes(&ck), Path::new("c"), &scn).unwrap_err();
+    let e = checkpoint::from_bytes(&checkpoint::to_bytes(&ck).expect("encodes"), Path::new("c"), &scn).unwrap_err();
     assert!(matches!(e, CheckpointError::TinctVersion { .. }), "{e:?}");
     let msg = e.to_string();
     assert!(

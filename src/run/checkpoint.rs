@@ -202,23 +202,24 @@ pub fn scenario_hash(scn: &Scenario) -> Result<[u8; 32], CheckpointError> {
     Ok(h.finalize().into())
 }
 
-/// The file's bytes: header, postcard body, digest.
-pub fn to_bytes(ck: &Checkpoint) -> Vec<u8> {
-    // Serialising plain data into a vector cannot fail.
-    let body = postcard::to_stdvec(ck).unwrap_or_default();
+/// The file's bytes: header, postcard body, digest. (Postcard fails only on types it cannot
+/// encode, which a `Checkpoint` does not hold; the error is passed on rather than hidden.)
+pub fn to_bytes(ck: &Checkpoint) -> Result<Vec<u8>, String> {
+    let body = postcard::to_stdvec(ck).map_err(|e| format!("the checkpoint does not encode: {e}"))?;
     let mut out = Vec::with_capacity(HEADER_LEN + body.len() + DIGEST_LEN);
     out.extend_from_slice(MAGIC);
     out.extend_from_slice(&FORMAT_VERSION.to_le_bytes());
     out.extend_from_slice(&(body.len() as u64).to_le_bytes());
     out.extend_from_slice(&body);
     out.extend_from_slice(&Sha256::digest(&body));
-    out
+    Ok(out)
 }
 
 /// Writes `ck` to `path` atomically (a synced temporary file renamed over the target), so an
 /// interruption leaves the previous checkpoint or the new one, never a part.
 pub fn write(path: &Path, ck: &Checkpoint) -> Result<(), OutputError> {
-    output::write_atomic(path, &to_bytes(ck))
+    let bytes = to_bytes(ck).map_err(|e| OutputError::invalid(path, e))?;
+    output::write_atomic(path, &bytes)
 }
 
 /// Reads the checkpoint at `path` for `scn`: refuses another format, another tinct version,
