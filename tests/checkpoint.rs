@@ -218,6 +218,7 @@ impl Run {
             iterations: self.iterations,
             wall_seconds: 1.5,
             output_seconds: 0.25,
+            threads: rayon::current_num_threads(),
         }
     }
 
@@ -347,6 +348,7 @@ fn continues_bit_for_bit_in(scheme: &str, text: &str) {
         let file = checkpoint::to_bytes(&first.checkpoint(&scn)).expect("encodes");
         let ck = checkpoint::from_bytes(&file, Path::new("checkpoint.bin"), &scn).expect("reads back");
         assert_eq!(ck.sim.step, split);
+        assert_eq!(ck.threads, rayon::current_num_threads());
         let mut resumed = Run::resume(&scn, ck);
         assert!(resumed.march(&scn, None));
         assert_identical(&whole, &resumed, &format!("{scheme}, split at step {split}"));

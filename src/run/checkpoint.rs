@@ -22,7 +22,8 @@
 //!   number of the next frame;
 //! - `dt_range`, `iterations`: the step-size range and the summed solver iterations and
 //!   corrections of the summary; `wall_seconds`, `output_seconds`: the run's time so far (the
-//!   summary's throughput counts the whole run).
+//!   summary's throughput counts the whole run);
+//! - `threads`: the thread count the run's partitions were made for (see the field).
 
 use crate::budget::BudgetRow;
 use crate::flow::FlowKind;
@@ -91,6 +92,12 @@ pub struct Checkpoint {
     pub wall_seconds: f64,
     /// Of those, seconds spent writing outputs.
     pub output_seconds: f64,
+    /// Rayon threads of the run (`rayon::current_num_threads`). The explicit kernel's row
+    /// blocks, the solvers' blocked reductions and the transform solver's partition follow the
+    /// thread count, so sums (side fluxes, decayed mass, Krylov inner products) round
+    /// differently under another count: a resume continues bit for bit only in a pool of this
+    /// many threads.
+    pub threads: usize,
 }
 
 /// The leading fields of a [`Checkpoint`], decoded before the rest (postcard writes a struct's
