@@ -5,7 +5,7 @@ use crate::field::Neumaier;
 use crate::ops::boundary::Side;
 
 /// Running totals since the start of the run (mass = concentration times m3).
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone, Default, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Budget {
     /// Mass in the domain at the start (after releases at t = 0).
     pub mass0: f64,
@@ -16,7 +16,7 @@ pub struct Budget {
 }
 
 /// One line of `budget.csv`.
-#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct BudgetRow {
     /// Simulated time, s.
     pub time: f64,

@@ -4,7 +4,7 @@ use crate::grid::{Grid, Mask};
 
 /// Running sum with Neumaier's compensation (an improved Kahan sum): the error stays at a few
 /// ulps of the result whatever the number of terms.
-#[derive(Debug, Clone, Copy, Default, PartialEq)]
+#[derive(Debug, Clone, Copy, Default, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Neumaier {
     sum: f64,
     comp: f64,

@@ -33,6 +33,11 @@ pub struct RunArgs {
     /// a picture).
     #[arg(long)]
     all_frames: bool,
+    /// Continue an interrupted or killed run from `<DIR>/<name>/checkpoint.bin` (the same
+    /// scenario, `--set` overrides and `--out` as the first run; the result is bit-identical
+    /// to an uninterrupted run on the same machine).
+    #[arg(long)]
+    resume: bool,
 }
 
 /// Runs `tinct run`.
@@ -44,6 +49,7 @@ pub fn main(a: RunArgs) -> Result<(), Failure> {
         quiet,
         force,
         all_frames,
+        resume,
     } = a;
     let path = scenario.as_path();
     let sets = &sets[..];
@@ -96,7 +102,10 @@ pub fn main(a: RunArgs) -> Result<(), Failure> {
         }
     }
     let stop = stop_on_signals().map_err(|e| failed(format!("cannot handle interruption signals: {e}")))?;
-    let options = RunOptions { stop: Some(stop) };
+    let options = RunOptions {
+        stop: Some(stop),
+        resume,
+    };
     let result = execute_with(&scn, &base, &options, &mut on_start, &mut progress);
     bar.finish_and_clear();
     match result {
@@ -182,6 +191,9 @@ fn write_outcome(o: &tinct::run::RunOutcome, out: &mut impl std::io::Write) -> s
         s.wall_seconds,
         s.cell_updates_per_second / 1e6
     )?;
+    if let Some((step, t)) = o.resumed_from {
+        writeln!(out, "  resumed from the checkpoint at step {step} (t = {})", fmt_t(t))?;
+    }
     writeln!(out, "  mass: start {:.6e}, end {:.6e}; added {:.4e}, in {:.4e}, out {:.4e}, decayed {:.4e}; largest budget residual {:.1e}", s.initial_mass, s.final_mass, s.added, s.inflow, s.outflow, s.decayed, s.max_abs_residual)?;
     writeln!(out, "  concentration: min {:.4e}, max {:.4e}", s.min_ever, s.max_ever)?;
     for w in &s.warnings {

@@ -5,7 +5,7 @@
 use crate::grid::Grid;
 
 /// Zeroth, first and second moments of a non-negative field.
-#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Moments {
     /// Sum of the field times the cell area (mass per unit depth).
     pub total: f64,

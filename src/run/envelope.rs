@@ -4,7 +4,7 @@
 use crate::grid::Grid;
 
 /// Running maximum per cell, `nx * ny` values row-major, row 0 south.
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, serde::Serialize, serde::Deserialize)]
 pub struct Envelope {
     /// The largest value seen in each cell.
     pub c_max: Vec<f64>,

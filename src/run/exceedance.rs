@@ -8,7 +8,7 @@ use crate::grid::Grid;
 use rayon::prelude::*;
 
 /// One distinct threshold and the receptors that carry it.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Threshold {
     /// Concentration, tracer units.
     pub value: f64,
@@ -45,7 +45,7 @@ pub struct ExceedanceFigure {
 /// the sum of its closed spells above plus the start of the open one, so a step reads the
 /// field, the wet flags and one state byte per cell and threshold (the work is that of reading
 /// the field once, whatever the number of thresholds).
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, serde::Serialize, serde::Deserialize)]
 pub struct Exceedance {
     nx: usize,
     cell_area: f64,
@@ -111,6 +111,20 @@ impl Exceedance {
         e.count(grid, c, t0);
         e.keep_row(t0);
         Some(e)
+    }
+
+    /// Whether these statistics' sizes fit `grid` (statistics read back from a checkpoint are
+    /// checked before they are used).
+    pub fn fits(&self, grid: &Grid) -> bool {
+        let (cells, n) = (grid.cells(), self.thresholds.len());
+        n > 0
+            && self.nx == grid.nx
+            && self.wet.len() == cells
+            && self.wet_u8.len() == cells
+            && [self.above.len(), self.since.len(), self.closed.len()] == [cells * n; 3]
+            && self.area.len() == n
+            && self.largest.len() == n
+            && self.rows.len().is_multiple_of(n + 1)
     }
 
     /// Takes the padded field `c` at the end of a step ending at `t` into account: the whole

@@ -6,6 +6,7 @@
 //! is interrupted still writes what it has (budget, receptors, fields so far, a summary saying
 //! why it stopped). Nothing here prints: progress goes to a callback.
 
+pub mod checkpoint;
 pub mod cost;
 pub mod envelope;
 pub mod exceedance;
@@ -55,6 +56,8 @@ pub struct RunOutcome {
     pub dir: PathBuf,
     /// What `summary.json` holds.
     pub summary: RunSummary,
+    /// Step and time of the checkpoint a resumed run continued from.
+    pub resumed_from: Option<(u64, f64)>,
 }
 
 /// How a run is carried out, beyond its scenario.
@@ -64,6 +67,10 @@ pub struct RunOptions {
     /// finishes like a stopped run: logs, fields and frames so far, `summary.json` with status
     /// `interrupted` ([`RunFailure::Interrupted`]).
     pub stop: Option<Arc<AtomicBool>>,
+    /// Continue from `<dir>/<name>/checkpoint.bin` instead of starting afresh: the state, the
+    /// logs and the fields are restored to the checkpoint and the run goes on from there, so
+    /// its files end bit-identical to an uninterrupted run's (apart from wall times).
+    pub resume: bool,
 }
 
 /// Why a run did not complete.
@@ -159,7 +166,21 @@ pub fn execute_with(
     // The folder: every failure up to the first step means it cannot take the run (exit 2).
     let _lock = folder::lock_folder(&dir)?;
     let setup = |e: OutputError| RunFailure::Folder(e.into());
-    folder::prepare_folder(&dir, false).map_err(setup)?;
+    let resumed = if options.resume {
+        let ck = resume_from(&dir, scn, &mut sim)?;
+        if ck.threads != rayon::current_num_threads() {
+            on_start(&[format!(
+                "the checkpoint was written by a run with {} thread(s) and this one has {}: sums over row blocks round differently, so the continuation matches an uninterrupted run to round-off, not bit for bit",
+                ck.threads,
+                rayon::current_num_threads()
+            )]);
+        }
+        Some(ck)
+    } else {
+        None
+    };
+    let resumed_from = resumed.as_ref().map(|_| (sim.state.step, sim.state.t));
+    folder::prepare_folder(&dir, options.resume).map_err(setup)?;
     let start_summary = folder::StartSummary::new(scn);
     start_summary.write(&dir).map_err(setup)?;
     std::fs::create_dir_all(&frames_dir).map_err(|e| setup(OutputError::io(&frames_dir, e)))?;
@@ -202,18 +223,58 @@ pub fn execute_with(
     let mut rows: Vec<BudgetRow> = vec![sim.budget_row()];
     let (mut dt_min, mut dt_max) = (f64::INFINITY, 0.0f64);
     let mut iterations = (0usize, 0usize);
-    receptors.record(0.0, 0.0, &sim.state.c);
-    let mut logs = logs::RunLogs::create(&dir, &rows, &receptors, exceed.as_ref()).map_err(setup)?;
     let mut envelope = envelope::Envelope::new(&grid, &sim.state.c);
+    // The fields written to fields.nc so far (a checkpoint carries them).
+    let mut frame_records: Vec<checkpoint::FrameRecord> = Vec::new();
+    // Wall seconds of the run before this process (a resumed run).
+    let mut earlier_wall = 0.0;
     // A frame's field goes to fields.nc now; its picture is drawn once the run's range is known.
-    let write_frame = |sim: &Simulation, fields: &mut FieldsWriter, secs: &mut f64| -> Result<(), OutputError> {
+    let write_frame = |t: f64,
+                       values: Vec<f64>,
+                       fields: &mut FieldsWriter,
+                       records: &mut Vec<checkpoint::FrameRecord>,
+                       secs: &mut f64|
+     -> Result<(), OutputError> {
         let t0 = Instant::now();
-        let r = fields.write_record(sim.state.t, &sim.field(), Some(&wet));
+        let r = fields.write_record(t, &values, Some(&wet));
+        records.push(checkpoint::FrameRecord { time: t, values });
         *secs += t0.elapsed().as_secs_f64();
         r
     };
-    write_frame(&sim, &mut fields, &mut output_seconds).map_err(setup)?;
-    plume.observe(&grid, sim.state.t, &sim.field(), &wet);
+    match resumed {
+        Some(ck) => {
+            rows = ck.rows;
+            receptors = ck.receptors;
+            envelope = ck.envelope;
+            exceed = ck.exceedance;
+            plume = ck.plume;
+            (dt_min, dt_max) = ck.dt_range;
+            iterations = ck.iterations;
+            output_seconds = ck.output_seconds;
+            earlier_wall = ck.wall_seconds;
+            for r in ck.frame_records {
+                write_frame(r.time, r.values, &mut fields, &mut frame_records, &mut output_seconds).map_err(setup)?;
+            }
+        }
+        None => {
+            receptors.record(0.0, 0.0, &sim.state.c);
+            write_frame(
+                sim.state.t,
+                sim.field(),
+                &mut fields,
+                &mut frame_records,
+                &mut output_seconds,
+            )
+            .map_err(setup)?;
+            plume.observe(&grid, sim.state.t, &sim.field(), &wet);
+        }
+    }
+    let mut logs = logs::RunLogs::create(&dir, &rows, &receptors, exceed.as_ref()).map_err(setup)?;
+    let ck_path = dir.join(checkpoint::FILE);
+    let scenario_hash = checkpoint::scenario_hash(scn).map_err(|e| RunFailure::BadInput(e.to_string()))?;
+    let ck_every = scn.run.checkpoint_every;
+    let mut next_ck_t = ck_every.map_or(f64::INFINITY, |e| sim.state.t + e);
+    let mut last_ck = Instant::now();
 
     // From here a write that fails is a failed run (exit 1): summary.json says so if it can.
     let fail = |e: OutputError| {
@@ -230,8 +291,8 @@ pub fn execute_with(
     let log_every = scn.run.log_every.max(1);
     // A mass, residual or value that is not finite fails the run (from the initial state on).
     let mut failure: Option<RunError> = sim.check_row(&rows[0]).err();
-    let mut written = 1;
-    for k in (1..=n_frames).take_while(|_| failure.is_none()) {
+    let mut written = frame_records.len();
+    for k in (written..=n_frames).take_while(|_| failure.is_none()) {
         let mut bad_row: Option<RunError> = None;
         let mut write_error: Option<OutputError> = None;
         let target = if k == n_frames {
@@ -274,7 +335,44 @@ pub fn execute_with(
                 step: st.step,
                 dt: st.last_dt,
             });
-            if stopped() {
+            let stop_now = stopped();
+            // A checkpoint after a whole step with its observers (never after a failure): every
+            // `run.checkpoint_every` simulated seconds, else every minute of wall time, and
+            // when a signal stops the run.
+            let due = match ck_every {
+                Some(every) => {
+                    st.t >= next_ck_t && {
+                        next_ck_t = ((st.t / every).floor() + 1.0) * every;
+                        true
+                    }
+                }
+                None => last_ck.elapsed().as_secs_f64() >= CHECKPOINT_WALL_SECONDS,
+            };
+            if due || stop_now {
+                let ck = checkpoint::Checkpoint {
+                    tinct_version: env!("CARGO_PKG_VERSION").into(),
+                    scenario_hash,
+                    scenario_name: scn.name.clone(),
+                    sim: s.snapshot(),
+                    rows: rows.clone(),
+                    receptors: receptors.clone(),
+                    envelope: envelope.clone(),
+                    exceedance: exceed.clone(),
+                    plume: plume.clone(),
+                    frame_records: frame_records.clone(),
+                    dt_range: (dt_min, dt_max),
+                    iterations,
+                    wall_seconds: earlier_wall + started.elapsed().as_secs_f64(),
+                    output_seconds,
+                    threads: rayon::current_num_threads(),
+                };
+                if let Err(e) = checkpoint::write(&ck_path, &ck) {
+                    write_error = Some(e);
+                    return ControlFlow::Break(());
+                }
+                last_ck = Instant::now();
+            }
+            if stop_now {
                 interrupted = true;
                 return ControlFlow::Break(());
             }
@@ -319,9 +417,37 @@ pub fn execute_with(
             failure = Some(e);
             break;
         }
-        write_frame(&sim, &mut fields, &mut output_seconds).map_err(fail)?;
+        write_frame(
+            sim.state.t,
+            sim.field(),
+            &mut fields,
+            &mut frame_records,
+            &mut output_seconds,
+        )
+        .map_err(fail)?;
         plume.observe(&grid, sim.state.t, &sim.field(), &wet);
         written += 1;
+    }
+    // The last checkpoint: a completed run resumed only rewrites its results.
+    if failure.is_none() && !interrupted {
+        let ck = checkpoint::Checkpoint {
+            tinct_version: env!("CARGO_PKG_VERSION").into(),
+            scenario_hash,
+            scenario_name: scn.name.clone(),
+            sim: sim.snapshot(),
+            rows: rows.clone(),
+            receptors: receptors.clone(),
+            envelope: envelope.clone(),
+            exceedance: exceed.clone(),
+            plume: plume.clone(),
+            frame_records: std::mem::take(&mut frame_records),
+            dt_range: (dt_min, dt_max),
+            iterations,
+            wall_seconds: earlier_wall + started.elapsed().as_secs_f64(),
+            output_seconds,
+            threads: rayon::current_num_threads(),
+        };
+        checkpoint::write(&ck_path, &ck).map_err(fail)?;
     }
     // Logs, fields and pictures: written whether or not the run completed.
     let finish = || -> Result<(RunSummary, Result<(), OutputError>), OutputError> {
@@ -350,7 +476,7 @@ pub fn execute_with(
             output::animation::write_gif(&gif, &palette, delay, &dir.join("animation.gif"))?;
         }
         output_seconds += writing.elapsed().as_secs_f64();
-        let wall = started.elapsed().as_secs_f64();
+        let wall = earlier_wall + started.elapsed().as_secs_f64();
         let mut summary = RunSummary::new(
             scn,
             &sim,
@@ -392,12 +518,35 @@ pub fn execute_with(
     let (summary, pictures) = finish().map_err(fail)?;
     // A chart or report that failed: summary.json already holds the run's facts.
     pictures?;
-    let outcome = Box::new(RunOutcome { dir, summary });
+    let outcome = Box::new(RunOutcome {
+        dir,
+        summary,
+        resumed_from,
+    });
     match failure {
         None if interrupted => Err(RunFailure::Interrupted(outcome)),
         None => Ok(*outcome),
         Some(error) => Err(RunFailure::Stopped { error, outcome }),
     }
+}
+
+/// Wall seconds between checkpoints when `run.checkpoint_every` is not given.
+pub const CHECKPOINT_WALL_SECONDS: f64 = 60.0;
+
+/// Reads `<dir>/checkpoint.bin` for `scn` and restores `sim` from it; any problem is bad input
+/// (exit 2) saying what differs.
+fn resume_from(dir: &Path, scn: &Scenario, sim: &mut Simulation) -> Result<checkpoint::Checkpoint, RunFailure> {
+    let path = dir.join(checkpoint::FILE);
+    if !path.exists() {
+        return Err(RunFailure::BadInput(format!(
+            "--resume: {} does not exist: nothing to resume (run without --resume to start afresh)",
+            path.display()
+        )));
+    }
+    let ck = checkpoint::read(&path, scn).map_err(|e| RunFailure::BadInput(format!("--resume: {e}")))?;
+    sim.restore(ck.sim.clone())
+        .map_err(|e| RunFailure::BadInput(format!("--resume: {}: {e}", path.display())))?;
+    Ok(ck)
 }
 
 /// `plots/*.png` from the run's series, then `report.html`; adds them to `summary.files`.

@@ -5,7 +5,7 @@
 use crate::grid::Grid;
 
 /// Statistics of one receptor over the run.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct ReceptorStats {
     /// Name.
     pub name: String,
@@ -25,7 +25,7 @@ pub struct ReceptorStats {
 }
 
 /// Recorder of every receptor.
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, serde::Serialize, serde::Deserialize)]
 pub struct ReceptorLog {
     cells: Vec<usize>,
     stats: Vec<ReceptorStats>,
@@ -91,6 +91,14 @@ impl ReceptorLog {
                 }
             }
         }
+    }
+
+    /// Whether this log's sizes fit a padded field of `padded_len` values (a log read back
+    /// from a checkpoint is checked before it is used).
+    pub fn fits(&self, padded_len: usize) -> bool {
+        self.cells.len() == self.stats.len()
+            && self.cells.iter().all(|&p| p < padded_len)
+            && self.rows.len().is_multiple_of(self.cells.len() + 1)
     }
 
     /// The statistics so far.

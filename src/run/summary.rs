@@ -103,7 +103,7 @@ pub fn single_release_refusal(scn: &Scenario) -> Option<String> {
 
 /// Follows a single release's moments at frame times and keeps the first and last frames where
 /// the plume (centroid plus or minus three standard deviations) is away from the sides.
-#[derive(Debug, Clone)]
+#[derive(Debug, Clone, serde::Serialize, serde::Deserialize)]
 pub struct PlumeTrack {
     /// Why no measurement is possible (not a single release), if so.
     refused: Option<String>,

@@ -8,6 +8,7 @@
 mod explicit;
 mod implicit;
 pub(crate) mod kernel;
+mod snapshot;
 
 use crate::budget::{Budget, BudgetRow};
 use crate::diagnostics::advice::sig;
@@ -18,6 +19,7 @@ use crate::ops::limiter::Limiter;
 use crate::ops::sources::decay_factor;
 use explicit::Explicit;
 use implicit::{Implicit, ImplicitFailure};
+pub use snapshot::{ImplicitCounters, SimState};
 use std::ops::ControlFlow;
 
 /// How time is advanced (DESIGN §2).
