@@ -234,3 +234,46 @@ fn sigint_stops_with_a_resumable_checkpoint() {
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     assert!(files(&folder) == reference, "resumed after SIGINT differs");
 }
+
+#[test]
+fn after_a_write_fault_the_last_good_checkpoint_resumes() {
+    use std::os::unix::process::CommandExt;
+    let dir = tempfile::tempdir().unwrap();
+    let scn = dir.path().join("berth.toml");
+    std::fs::write(&scn, scenario("", 5)).unwrap();
+    let o = run(dir.path(), &scn, "whole", &[]);
+    assert!(o.status.success());
+    let reference = files(&dir.path().join("whole/berth"));
+    // A file size limit that the first checkpoints fit under and a later one does not (the
+    // checkpoint carries the frames written so far, so it grows): the run fails with exit 1.
+    let limit: u64 = 620_000;
+    let mut cmd = Command::new(bin());
+    cmd.args(["run", scn.to_str().unwrap(), "--out", "cut", "--quiet"])
+        .current_dir(dir.path());
+    // SAFETY: only async-signal-safe calls between fork and exec.
+    unsafe {
+        cmd.pre_exec(move || {
+            let lim = libc::rlimit {
+                rlim_cur: limit,
+                rlim_max: limit,
+            };
+            if libc::setrlimit(libc::RLIMIT_FSIZE, &lim) != 0 {
+                return Err(std::io::Error::last_os_error());
+            }
+            libc::signal(libc::SIGXFSZ, libc::SIG_IGN);
+            Ok(())
+        });
+    }
+    let o = cmd.output().unwrap();
+    assert_eq!(o.status.code(), Some(1), "{}", String::from_utf8_lossy(&o.stderr));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("File too large"));
+    let folder = dir.path().join("cut/berth");
+    assert!(
+        folder.join("checkpoint.bin").exists(),
+        "an earlier checkpoint was written"
+    );
+    let o = run(dir.path(), &scn, "cut", &["--resume"]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    assert!(String::from_utf8_lossy(&o.stdout).contains("resumed from the checkpoint at step"));
+    assert!(files(&folder) == reference, "resumed after a write fault differs");
+}
