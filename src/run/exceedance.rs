@@ -4,6 +4,7 @@
 //! the threshold (the rule the receptor statistics use), so the time above summed over cells
 //! equals the area above integrated over the steps.
 
+use super::receptors::csv_line;
 use crate::grid::Grid;
 use rayon::prelude::*;
 
@@ -239,8 +240,7 @@ impl Exceedance {
     pub fn last_csv_row(&self) -> Option<String> {
         let w = self.thresholds.len() + 1;
         let row = self.rows.chunks_exact(w).next_back()?;
-        let line: Vec<String> = row.iter().map(|v| format!("{v:e}")).collect();
-        Some(format!("{}\n", line.join(",")))
+        Some(csv_line(row))
     }
 
     /// `exceedance.csv`: `time` (s), then `area_above_<value>` (m2) per threshold.
@@ -252,9 +252,7 @@ impl Exceedance {
         }
         out.push('\n');
         for row in self.rows.chunks_exact(w) {
-            let line: Vec<String> = row.iter().map(|v| format!("{v:e}")).collect();
-            out.push_str(&line.join(","));
-            out.push('\n');
+            out.push_str(&csv_line(row));
         }
         out
     }

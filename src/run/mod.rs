@@ -349,23 +349,15 @@ pub fn execute_with(
                 None => last_ck.elapsed().as_secs_f64() >= CHECKPOINT_WALL_SECONDS,
             };
             if due || stop_now {
-                let ck = checkpoint::Checkpoint {
-                    tinct_version: env!("CARGO_PKG_VERSION").into(),
+                let ck = checkpoint_of(
+                    scn,
                     scenario_hash,
-                    scenario_name: scn.name.clone(),
-                    sim: s.snapshot(),
-                    rows: rows.clone(),
-                    receptors: receptors.clone(),
-                    envelope: envelope.clone(),
-                    exceedance: exceed.clone(),
-                    plume: plume.clone(),
-                    frame_records: frame_records.clone(),
-                    dt_range: (dt_min, dt_max),
-                    iterations,
-                    wall_seconds: earlier_wall + started.elapsed().as_secs_f64(),
-                    output_seconds,
-                    threads: rayon::current_num_threads(),
-                };
+                    s,
+                    (&rows, &receptors, &envelope, exceed.as_ref(), &plume),
+                    frame_records.clone(),
+                    ((dt_min, dt_max), iterations),
+                    (earlier_wall + started.elapsed().as_secs_f64(), output_seconds),
+                );
                 if let Err(e) = checkpoint::write(&ck_path, &ck) {
                     write_error = Some(e);
                     return ControlFlow::Break(());
@@ -430,23 +422,15 @@ pub fn execute_with(
     }
     // The last checkpoint: a completed run resumed only rewrites its results.
     if failure.is_none() && !interrupted {
-        let ck = checkpoint::Checkpoint {
-            tinct_version: env!("CARGO_PKG_VERSION").into(),
+        let ck = checkpoint_of(
+            scn,
             scenario_hash,
-            scenario_name: scn.name.clone(),
-            sim: sim.snapshot(),
-            rows: rows.clone(),
-            receptors: receptors.clone(),
-            envelope: envelope.clone(),
-            exceedance: exceed.clone(),
-            plume: plume.clone(),
-            frame_records: std::mem::take(&mut frame_records),
-            dt_range: (dt_min, dt_max),
-            iterations,
-            wall_seconds: earlier_wall + started.elapsed().as_secs_f64(),
-            output_seconds,
-            threads: rayon::current_num_threads(),
-        };
+            &sim,
+            (&rows, &receptors, &envelope, exceed.as_ref(), &plume),
+            std::mem::take(&mut frame_records),
+            ((dt_min, dt_max), iterations),
+            (earlier_wall + started.elapsed().as_secs_f64(), output_seconds),
+        );
         checkpoint::write(&ck_path, &ck).map_err(fail)?;
     }
     // Logs, fields and pictures: written whether or not the run completed.
@@ -532,6 +516,45 @@ pub fn execute_with(
 
 /// Wall seconds between checkpoints when `run.checkpoint_every` is not given.
 pub const CHECKPOINT_WALL_SECONDS: f64 = 60.0;
+
+/// The march's observers, by reference: budget rows, receptors, envelope, exceedance, plume.
+type Observers<'a> = (
+    &'a [BudgetRow],
+    &'a ReceptorLog,
+    &'a envelope::Envelope,
+    Option<&'a exceedance::Exceedance>,
+    &'a summary::PlumeTrack,
+);
+
+/// The checkpoint of a run at `sim`'s state: `counts` are the dt range and the summed
+/// iterations, `seconds` the wall and output seconds so far.
+fn checkpoint_of(
+    scn: &Scenario,
+    scenario_hash: [u8; 32],
+    sim: &Simulation,
+    (rows, receptors, envelope, exceed, plume): Observers,
+    frame_records: Vec<checkpoint::FrameRecord>,
+    (dt_range, iterations): ((f64, f64), (usize, usize)),
+    (wall_seconds, output_seconds): (f64, f64),
+) -> checkpoint::Checkpoint {
+    checkpoint::Checkpoint {
+        tinct_version: env!("CARGO_PKG_VERSION").into(),
+        scenario_hash,
+        scenario_name: scn.name.clone(),
+        sim: sim.snapshot(),
+        rows: rows.to_vec(),
+        receptors: receptors.clone(),
+        envelope: envelope.clone(),
+        exceedance: exceed.cloned(),
+        plume: plume.clone(),
+        frame_records,
+        dt_range,
+        iterations,
+        wall_seconds,
+        output_seconds,
+        threads: rayon::current_num_threads(),
+    }
+}
 
 /// Reads `<dir>/checkpoint.bin` for `scn` and restores `sim` from it; any problem is bad input
 /// (exit 2) saying what differs.

@@ -140,8 +140,7 @@ impl ReceptorLog {
     pub fn last_csv_row(&self) -> Option<String> {
         let w = self.stats.len() + 1;
         let row = self.rows.chunks_exact(w).next_back()?;
-        let line: Vec<String> = row.iter().map(|v| format!("{v:e}")).collect();
-        Some(format!("{}\n", line.join(",")))
+        Some(csv_line(row))
     }
 
     /// `receptors.csv`: `time`, then one column per receptor.
@@ -154,12 +153,16 @@ impl ReceptorLog {
         }
         out.push('\n');
         for row in self.rows.chunks_exact(w) {
-            let line: Vec<String> = row.iter().map(|v| format!("{v:e}")).collect();
-            out.push_str(&line.join(","));
-            out.push('\n');
+            out.push_str(&csv_line(row));
         }
         out
     }
+}
+
+/// One CSV line of numbers in `{:e}` form, with its newline (the rows of the run's logs).
+pub fn csv_line(row: &[f64]) -> String {
+    let line: Vec<String> = row.iter().map(|v| format!("{v:e}")).collect();
+    format!("{}\n", line.join(","))
 }
 
 /// Quotes a CSV field when it needs it.
