@@ -348,7 +348,9 @@ pub fn execute_with(
                 }
                 None => last_ck.elapsed().as_secs_f64() >= CHECKPOINT_WALL_SECONDS,
             };
-            if due || stop_now {
+            // Only a state that passes the budget checks (finite mass, values and residual)
+            // replaces the last good checkpoint.
+            if (due || stop_now) && s.check_row(&s.budget_row()).is_ok() {
                 let ck = checkpoint_of(
                     scn,
                     scenario_hash,
