@@ -277,3 +277,39 @@ fn after_a_write_fault_the_last_good_checkpoint_resumes() {
     assert!(String::from_utf8_lossy(&o.stdout).contains("resumed from the checkpoint at step"));
     assert!(files(&folder) == reference, "resumed after a write fault differs");
 }
+
+#[test]
+fn a_diverging_run_leaves_a_checkpoint_that_diverges_the_same_way() {
+    // A fixed step 16 times the explicit limit (forced): the run blows up at step 3. Its last
+    // checkpoint is a finite state before that, which resumes (no exit 2) and diverges again at
+    // the same step, time and cell (common practice: a restart reproduces the run).
+    let dir = tempfile::tempdir().unwrap();
+    let scn = common::root().join("scenarios/gaussian-puff.toml");
+    let args = ["--force", "--set", "scheme.dt=600", "--set", "run.checkpoint_every=600"];
+    let first = run(dir.path(), &scn, "o", &args);
+    assert_eq!(
+        first.status.code(),
+        Some(1),
+        "{}",
+        String::from_utf8_lossy(&first.stderr)
+    );
+    assert!(dir.path().join("o/gaussian-puff/checkpoint.bin").exists());
+    let mut resumed_args = args.to_vec();
+    resumed_args.push("--resume");
+    let again = run(dir.path(), &scn, "o", &resumed_args);
+    assert_eq!(
+        again.status.code(),
+        Some(1),
+        "{}",
+        String::from_utf8_lossy(&again.stderr)
+    );
+    let what = |o: &std::process::Output| {
+        let e = String::from_utf8_lossy(&o.stderr).to_string();
+        e.lines()
+            .find(|l| l.contains("diverged"))
+            .map(str::to_string)
+            .unwrap_or(e)
+    };
+    assert_eq!(what(&first), what(&again));
+    assert!(what(&again).contains("step 3"), "{}", what(&again));
+}
