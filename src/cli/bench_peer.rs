@@ -117,6 +117,14 @@ fn puff_sample(sim: &mut Simulation, cells: usize, seconds: f64) -> Result<f64, 
     Ok((cells * k) as f64 / run(k)?.max(1e-9) / 1e6)
 }
 
+/// The 1-minute load average (`/proc/loadavg`), when the system gives it.
+fn load_average() -> String {
+    std::fs::read_to_string("/proc/loadavg")
+        .ok()
+        .and_then(|s| s.split_whitespace().next().map(str::to_string))
+        .unwrap_or_else(|| "n/a".to_string())
+}
+
 /// Median, min and max of the samples (sorted in place).
 fn stats(v: &mut [f64]) -> (f64, f64, f64) {
     v.sort_by(f64::total_cmp);
@@ -153,6 +161,7 @@ pub fn main(dir: &Path, sizes: &[usize], reps: usize, seconds: f64) -> Result<()
     let tmp = TempDir(std::env::temp_dir().join(format!("tinct-bench-peer-{}", std::process::id())));
     let bin = build_peer(dir, &tmp.0)?;
     let threads = rayon::current_num_threads();
+    let load_before = load_average();
     // samples[size][0..2] C variants, [2] tinct.
     let mut samples = vec![[Vec::new(), Vec::new(), Vec::new()]; sizes.len()];
     let (mut puff, puff_cells) = puff_simulation()?;
@@ -176,6 +185,9 @@ pub fn main(dir: &Path, sizes: &[usize], reps: usize, seconds: f64) -> Result<()
     }
     println!(
         "explicit van Leer step, periodic vortex (the peer's normative problem), Mcell/s, median [min-max] over {reps} round(s) of ~{seconds} s each; {threads} thread(s) for both; peer built with cc -O3 -march=native -fopenmp"
+    );
+    println!(
+        "1-minute load average just before: {load_before} (if well above 0, other work shared the {threads} core(s) and the ratios are unreliable)"
     );
     println!();
     println!("| N | {} | {} | tinct | tinct / best C |", VARIANTS[0].1, VARIANTS[1].1);
