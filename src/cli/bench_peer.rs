@@ -117,12 +117,47 @@ fn puff_sample(sim: &mut Simulation, cells: usize, seconds: f64) -> Result<f64, 
     Ok((cells * k) as f64 / run(k)?.max(1e-9) / 1e6)
 }
 
-/// The 1-minute load average (`/proc/loadavg`), when the system gives it.
-fn load_average() -> String {
-    std::fs::read_to_string("/proc/loadavg")
-        .ok()
-        .and_then(|s| s.split_whitespace().next().map(str::to_string))
-        .unwrap_or_else(|| "n/a".to_string())
+/// Busy CPU seconds of the whole machine (`/proc/stat`: user, nice, system, irq, softirq and
+/// steal) and of this process with its waited-for children, when the system gives both.
+fn cpu_seconds() -> Option<(f64, f64)> {
+    let stat = std::fs::read_to_string("/proc/stat").ok()?;
+    let f: Vec<f64> = stat
+        .lines()
+        .next()?
+        .split_whitespace()
+        .skip(1)
+        .map_while(|x| x.parse().ok())
+        .collect();
+    let busy = [0, 1, 2, 5, 6, 7]
+        .iter()
+        .map(|&k| f.get(k).copied().unwrap_or(0.0))
+        .sum::<f64>();
+    // SAFETY: sysconf and getrusage only write into the zeroed struct passed to them.
+    let (tick, own) = unsafe {
+        let tick = libc::sysconf(libc::_SC_CLK_TCK) as f64;
+        let mut own = 0.0;
+        for who in [libc::RUSAGE_SELF, libc::RUSAGE_CHILDREN] {
+            let mut r: libc::rusage = std::mem::zeroed();
+            if libc::getrusage(who, &mut r) != 0 {
+                return None;
+            }
+            for t in [r.ru_utime, r.ru_stime] {
+                own += t.tv_sec as f64 + 1e-6 * t.tv_usec as f64;
+            }
+        }
+        (tick, own)
+    };
+    (tick > 0.0).then_some((busy / tick, own))
+}
+
+/// CPUs' worth of other work between two [`cpu_seconds`] readings `wall` seconds apart.
+fn background_cpus(before: Option<(f64, f64)>, after: Option<(f64, f64)>, wall: f64) -> String {
+    match (before, after) {
+        (Some((b0, o0)), Some((b1, o1))) if wall > 0.0 => {
+            format!("{:.2}", (((b1 - b0) - (o1 - o0)) / wall).max(0.0))
+        }
+        _ => "n/a".to_string(),
+    }
 }
 
 /// Median, min and max of the samples (sorted in place).
@@ -161,7 +196,7 @@ pub fn main(dir: &Path, sizes: &[usize], reps: usize, seconds: f64) -> Result<()
     let tmp = TempDir(std::env::temp_dir().join(format!("tinct-bench-peer-{}", std::process::id())));
     let bin = build_peer(dir, &tmp.0)?;
     let threads = rayon::current_num_threads();
-    let load_before = load_average();
+    let (cpu_before, t0) = (cpu_seconds(), Instant::now());
     // samples[size][0..2] C variants, [2] tinct.
     let mut samples = vec![[Vec::new(), Vec::new(), Vec::new()]; sizes.len()];
     let (mut puff, puff_cells) = puff_simulation()?;
@@ -187,7 +222,8 @@ pub fn main(dir: &Path, sizes: &[usize], reps: usize, seconds: f64) -> Result<()
         "explicit van Leer step, periodic vortex (the peer's normative problem), Mcell/s, median [min-max] over {reps} round(s) of ~{seconds} s each; {threads} thread(s) for both; peer built with cc -O3 -march=native -fopenmp"
     );
     println!(
-        "1-minute load average just before: {load_before} (if well above 0, other work shared the {threads} core(s) and the ratios are unreliable)"
+        "other work during the rounds: {} CPUs' worth (machine busy time minus this process and its children; above ~0.1 the ratios are unreliable)",
+        background_cpus(cpu_before, cpu_seconds(), t0.elapsed().as_secs_f64())
     );
     println!();
     println!("| N | {} | {} | tinct | tinct / best C |", VARIANTS[0].1, VARIANTS[1].1);
