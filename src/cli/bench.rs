@@ -7,15 +7,15 @@ use tinct::ops::limiter::Limiter;
 /// Arguments of `tinct bench`.
 #[derive(clap::Args)]
 pub struct BenchArgs {
-    /// Grid sizes (cells per side).
-    #[arg(long, value_delimiter = ',', default_value = "512,1024,2048")]
-    sizes: Vec<usize>,
+    /// Grid sizes (cells per side; default 512,1024,2048, with `--peer` 256,512,1024,2048).
+    #[arg(long, value_delimiter = ',')]
+    sizes: Option<Vec<usize>>,
     /// Convection schemes; `all` for every one.
     #[arg(long, value_delimiter = ',', default_value = "all")]
     schemes: Vec<String>,
-    /// Repetitions per configuration (the median is reported).
-    #[arg(long, default_value_t = 7)]
-    reps: usize,
+    /// Repetitions per configuration (the median is reported; default 7, with `--peer` 5 rounds).
+    #[arg(long)]
+    reps: Option<usize>,
     /// Seconds per repetition.
     #[arg(long, default_value_t = 0.3)]
     seconds: f64,
@@ -44,6 +44,10 @@ pub struct BenchArgs {
     /// The scenario for `--outputs` (default: the built-in dock basin).
     #[arg(long)]
     scenario: Option<PathBuf>,
+    /// Instead, run the explicit van Leer step side by side with the C peer in this folder
+    /// (built from `DIR/src/advect.c` with `cc`), interleaved in `--reps` rounds.
+    #[arg(long, value_name = "DIR")]
+    peer: Option<PathBuf>,
 }
 
 /// Runs `tinct bench`.
@@ -60,6 +64,7 @@ pub fn main(a: BenchArgs) -> Result<(), Failure> {
         solvers,
         outputs,
         scenario,
+        peer,
     } = a;
     let schemes = parse_schemes(&schemes)?;
     if let Some(t) = threads {
@@ -68,6 +73,12 @@ pub fn main(a: BenchArgs) -> Result<(), Failure> {
             .build_global()
             .map_err(|e| bad_input(format!("--threads: {e}")))?;
     }
+    if let Some(dir) = peer {
+        let sizes = sizes.unwrap_or_else(|| vec![256, 512, 1024, 2048]);
+        return super::bench_peer::main(&dir, &sizes, reps.unwrap_or(5), seconds);
+    }
+    let sizes = sizes.unwrap_or_else(|| vec![512, 1024, 2048]);
+    let reps = reps.unwrap_or(7);
     if implicit {
         return implicit_bench(&sizes, steps, &solvers);
     }

@@ -2,6 +2,7 @@
 //! arguments, calls the library and prints. Errors carry their exit code.
 
 pub mod bench;
+pub mod bench_peer;
 pub mod check;
 pub mod compare;
 pub mod converge;
