@@ -23,6 +23,7 @@ mod land;
 mod overrides;
 mod reader;
 mod resolved;
+mod schema;
 
 pub use examples::{example_files, write_example, ExampleFile};
 

@@ -6,8 +6,8 @@
 //! `grid.nx`, `source[0].rate`, `tracer.diffusivity[1]`. Missing tables on the way are created;
 //! missing array entries are not.
 
-use super::build::schema;
 use super::reader::{list, suggestion, Problems};
+use super::schema::schema;
 use super::Problem;
 use toml::{Table, Value};
 

@@ -18,7 +18,6 @@
 //! [`Stencil5::assemble`]: super::Stencil5::assemble
 
 use super::blocks::{dot_lanes, LANES};
-use super::stencil::Stencil5;
 
 /// West face open.
 pub(crate) const W: u8 = 1;
@@ -113,6 +112,32 @@ impl Consts {
     }
 }
 
+/// The coefficients of a 5-point operator as [`Compact::detect`] reads them (each `nx * ny`,
+/// row-major, row 0 south; `Stencil5::coefficients` lends them).
+#[derive(Debug, Clone, Copy)]
+pub struct Coefficients<'a> {
+    /// Cells in x.
+    pub nx: usize,
+    /// Cells in y.
+    pub ny: usize,
+    /// Periodic in x.
+    pub periodic_x: bool,
+    /// Periodic in y.
+    pub periodic_y: bool,
+    /// Diagonal.
+    pub diag: &'a [f64],
+    /// West coupling.
+    pub aw: &'a [f64],
+    /// East coupling.
+    pub ae: &'a [f64],
+    /// South coupling.
+    pub as_: &'a [f64],
+    /// North coupling.
+    pub an: &'a [f64],
+    /// Land flags.
+    pub land: &'a [bool],
+}
+
 impl Compact {
     /// The compact form of `a` if its coefficients fit it with identity weight `m` and
     /// Dirichlet diagonal terms `gx`, `gy` (taken as twice the couplings when `None`). With
@@ -120,7 +145,7 @@ impl Compact {
     /// coarse levels, where the form only serves the preconditioner). Needs at least 3 cells
     /// each way (so a cell touches at most one x side and one y side) and land only when
     /// `m = 1`.
-    pub fn detect(a: &Stencil5, m: f64, g: Option<(f64, f64)>, tol: f64) -> Option<Self> {
+    pub fn detect(a: &Coefficients, m: f64, g: Option<(f64, f64)>, tol: f64) -> Option<Self> {
         let (nx, ny) = (a.nx, a.ny);
         if nx < 3 || ny < 3 {
             return None;

@@ -9,7 +9,7 @@
 //! that the kernels always index the wrapped neighbour and need no branch at the edges.
 
 use super::blocks::{dot_lanes, rows_per_block, sum_rows, sum_rows_mut};
-use super::compact::{self, Compact};
+use super::compact::{self, Coefficients, Compact};
 use super::{check_len, SolveError};
 use crate::grid::{Grid, Mask};
 use crate::ops::boundary::{Boundaries, SideKind};
@@ -137,6 +137,22 @@ pub struct Stencil5 {
 }
 
 impl Stencil5 {
+    /// The coefficients, lent for [`Compact::detect`].
+    pub(crate) fn coefficients(&self) -> Coefficients<'_> {
+        Coefficients {
+            nx: self.nx,
+            ny: self.ny,
+            periodic_x: self.periodic_x,
+            periodic_y: self.periodic_y,
+            diag: &self.diag,
+            aw: &self.aw,
+            ae: &self.ae,
+            as_: &self.as_,
+            an: &self.an,
+            land: &self.land,
+        }
+    }
+
     /// An operator from its coefficients (each `nx * ny`, row-major, row 0 south) and land
     /// flags (`None`: all water). Checks the rules of the module doc and that water rows have
     /// a positive diagonal.
@@ -400,7 +416,7 @@ impl Stencil5 {
         self.symmetric = symmetric;
         // Exact (bit-for-bit) matrix-free form when the coefficients allow it.
         self.compact = None;
-        self.compact = Compact::detect(self, 1.0, None, 0.0);
+        self.compact = Compact::detect(&self.coefficients(), 1.0, None, 0.0);
         Ok(())
     }
 

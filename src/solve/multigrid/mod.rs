@@ -244,7 +244,7 @@ impl Multigrid {
                 let found = k.and_then(|kk| {
                     let m = kk.m * f64::from(1u32 << (sx + sy));
                     let g = (kk.gx * f64::from(1u32 << sy), kk.gy * f64::from(1u32 << sx));
-                    Compact::detect(&self.coarse[l - 1], m, Some(g), 1e-10)
+                    Compact::detect(&self.coarse[l - 1].coefficients(), m, Some(g), 1e-10)
                 });
                 k = found.as_ref().map(|c| c.k);
                 self.levels[l].compact = found;
