@@ -237,7 +237,6 @@ fn sigint_stops_with_a_resumable_checkpoint() {
 
 #[test]
 fn after_a_write_fault_the_last_good_checkpoint_resumes() {
-    use std::os::unix::process::CommandExt;
     let dir = tempfile::tempdir().unwrap();
     let scn = dir.path().join("berth.toml");
     std::fs::write(&scn, scenario("", 5)).unwrap();
@@ -250,20 +249,7 @@ fn after_a_write_fault_the_last_good_checkpoint_resumes() {
     let mut cmd = Command::new(bin());
     cmd.args(["run", scn.to_str().unwrap(), "--out", "cut", "--quiet"])
         .current_dir(dir.path());
-    // SAFETY: only async-signal-safe calls between fork and exec.
-    unsafe {
-        cmd.pre_exec(move || {
-            let lim = libc::rlimit {
-                rlim_cur: limit,
-                rlim_max: limit,
-            };
-            if libc::setrlimit(libc::RLIMIT_FSIZE, &lim) != 0 {
-                return Err(std::io::Error::last_os_error());
-            }
-            libc::signal(libc::SIGXFSZ, libc::SIG_IGN);
-            Ok(())
-        });
-    }
+    common::limit_file_size(&mut cmd, limit);
     let o = cmd.output().unwrap();
     assert_eq!(o.status.code(), Some(1), "{}", String::from_utf8_lossy(&o.stderr));
     assert!(String::from_utf8_lossy(&o.stderr).contains("File too large"));

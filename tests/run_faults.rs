@@ -9,7 +9,6 @@ mod common;
 use common::root;
 use std::fs::OpenOptions;
 use std::io::Write;
-use std::os::unix::process::CommandExt;
 use std::path::Path;
 use std::process::{Command, Output};
 
@@ -23,21 +22,7 @@ fn run_puff(dir: &Path, out: &str, sets: &[&str], fsize: Option<u64>) -> Output 
         cmd.args(["--set", s]);
     }
     if let Some(limit) = fsize {
-        // SAFETY: only async-signal-safe calls between fork and exec.
-        unsafe {
-            cmd.pre_exec(move || {
-                let lim = libc::rlimit {
-                    rlim_cur: limit,
-                    rlim_max: limit,
-                };
-                if libc::setrlimit(libc::RLIMIT_FSIZE, &lim) != 0 {
-                    return Err(std::io::Error::last_os_error());
-                }
-                // A write past the limit then fails with EFBIG instead of killing the process.
-                libc::signal(libc::SIGXFSZ, libc::SIG_IGN);
-                Ok(())
-            });
-        }
+        common::limit_file_size(&mut cmd, limit);
     }
     cmd.output().unwrap()
 }

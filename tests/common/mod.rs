@@ -97,3 +97,25 @@ pub fn tinct(args: &[&str], cwd: &Path) -> Output {
 pub fn root() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR"))
 }
+
+/// Limits the size of any file `cmd`'s process writes to `limit` bytes (RLIMIT_FSIZE), with
+/// SIGXFSZ ignored so that a write past it fails with EFBIG ("File too large") instead of
+/// killing the process: how a full disk or a quota looks to the program.
+#[allow(dead_code)]
+pub fn limit_file_size(cmd: &mut std::process::Command, limit: u64) {
+    use std::os::unix::process::CommandExt;
+    // SAFETY: only async-signal-safe calls between fork and exec.
+    unsafe {
+        cmd.pre_exec(move || {
+            let lim = libc::rlimit {
+                rlim_cur: limit,
+                rlim_max: limit,
+            };
+            if libc::setrlimit(libc::RLIMIT_FSIZE, &lim) != 0 {
+                return Err(std::io::Error::last_os_error());
+            }
+            libc::signal(libc::SIGXFSZ, libc::SIG_IGN);
+            Ok(())
+        });
+    }
+}
