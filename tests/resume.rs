@@ -140,13 +140,20 @@ fn files(folder: &Path) -> Vec<(String, Vec<u8>)> {
     out
 }
 
-fn check_resume(time: &str, log_every: u32, kill_rows: &[usize]) {
+/// A temporary folder with the scenario written into it and the files of its uninterrupted run
+/// (into `whole/`).
+fn with_reference(time: &str, log_every: u32) -> (tempfile::TempDir, PathBuf, Vec<(String, Vec<u8>)>) {
     let dir = tempfile::tempdir().unwrap();
     let scn = dir.path().join("berth.toml");
     std::fs::write(&scn, scenario(time, log_every)).unwrap();
     let o = run(dir.path(), &scn, "whole", &[]);
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let reference = files(&dir.path().join("whole/berth"));
+    (dir, scn, reference)
+}
+
+fn check_resume(time: &str, log_every: u32, kill_rows: &[usize]) {
+    let (dir, scn, reference) = with_reference(time, log_every);
     assert!(reference.iter().any(|(n, _)| n == "fields.nc"));
     for (k, &rows) in kill_rows.iter().enumerate() {
         let out = format!("cut{k}");
@@ -206,12 +213,7 @@ fn a_checkpoint_of_another_scenario_is_refused() {
 
 #[test]
 fn sigint_stops_with_a_resumable_checkpoint() {
-    let dir = tempfile::tempdir().unwrap();
-    let scn = dir.path().join("berth.toml");
-    std::fs::write(&scn, scenario("", 5)).unwrap();
-    let o = run(dir.path(), &scn, "whole", &[]);
-    assert!(o.status.success());
-    let reference = files(&dir.path().join("whole/berth"));
+    let (dir, scn, reference) = with_reference("", 5);
     let child = Command::new(bin())
         .args(["run", scn.to_str().unwrap(), "--out", "cut", "--quiet"])
         .current_dir(dir.path())
@@ -237,12 +239,7 @@ fn sigint_stops_with_a_resumable_checkpoint() {
 
 #[test]
 fn after_a_write_fault_the_last_good_checkpoint_resumes() {
-    let dir = tempfile::tempdir().unwrap();
-    let scn = dir.path().join("berth.toml");
-    std::fs::write(&scn, scenario("", 5)).unwrap();
-    let o = run(dir.path(), &scn, "whole", &[]);
-    assert!(o.status.success());
-    let reference = files(&dir.path().join("whole/berth"));
+    let (dir, scn, reference) = with_reference("", 5);
     // A file size limit that the first checkpoints fit under and a later one does not (the
     // checkpoint carries the frames written so far, so it grows): the run fails with exit 1.
     let limit: u64 = 620_000;

@@ -50,7 +50,6 @@ pub struct ExceedanceFigure {
 pub struct Exceedance {
     nx: usize,
     cell_area: f64,
-    wet: Vec<bool>,
     /// Distinct thresholds, ascending.
     pub thresholds: Vec<Threshold>,
     /// Wet flags as 0 or 1.
@@ -96,7 +95,6 @@ impl Exceedance {
         let mut e = Self {
             nx: grid.nx,
             cell_area: grid.cell_area(),
-            wet: wet.to_vec(),
             wet_u8: wet.iter().map(|&w| u8::from(w)).collect(),
             above: vec![0; cells * n],
             since: vec![0.0; cells * n],
@@ -120,7 +118,6 @@ impl Exceedance {
         let (cells, n) = (grid.cells(), self.thresholds.len());
         n > 0
             && self.nx == grid.nx
-            && self.wet.len() == cells
             && self.wet_u8.len() == cells
             && [self.above.len(), self.since.len(), self.closed.len()] == [cells * n; 3]
             && self.area.len() == n
@@ -135,7 +132,7 @@ impl Exceedance {
     }
 
     fn count(&mut self, grid: &Grid, c: &[f64], t: f64) {
-        let (nx, cells) = (self.nx, self.wet.len());
+        let (nx, cells) = (self.nx, self.wet_u8.len());
         let t_prev = self.t_last;
         // The first call opens the spells of cells above at the start, at the start.
         let opened = if self.rows.is_empty() { t } else { t_prev };
@@ -190,7 +187,7 @@ impl Exceedance {
     /// Seconds each cell spent at or above threshold `k` up to the last step observed:
     /// `nx * ny` values, row-major, row 0 south.
     pub fn seconds_above(&self, k: usize) -> Vec<f64> {
-        let cells = self.wet.len();
+        let cells = self.wet_u8.len();
         (0..cells)
             .map(|cell| {
                 let p = k * cells + cell;
@@ -274,8 +271,8 @@ impl Exceedance {
                 let s = &self.seconds_above(k);
                 let ever = c_max
                     .iter()
-                    .zip(&self.wet)
-                    .filter(|(&m, &w)| w && m >= th.value)
+                    .zip(&self.wet_u8)
+                    .filter(|(&m, &w)| w == 1 && m >= th.value)
                     .count();
                 let (mut best, mut at) = (0.0f64, None);
                 for (p, &v) in s.iter().enumerate() {
