@@ -41,6 +41,7 @@ pub mod initial;
 pub mod model;
 pub mod ops;
 pub mod output;
+pub mod par;
 pub mod report;
 pub mod run;
 pub mod scenario;

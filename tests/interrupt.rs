@@ -102,7 +102,7 @@ fn kill_9_keeps_the_logs_and_frees_the_folder() {
     child.kill().unwrap();
     child.wait().unwrap();
     let budget = complete_rows(&dir.join("budget.csv"));
-    assert!(budget.len() > 20);
+    assert!(budget.len() >= 20, "waited for 20 data rows");
     let receptors = complete_rows(&dir.join("receptors.csv"));
     assert!(receptors.len() + 1 >= budget.len() && receptors.len() <= budget.len() + 1);
     assert_eq!(summary(&dir)["status"], "running");

@@ -116,7 +116,7 @@ pub fn execute(
     scn: &Scenario,
     out_base: &Path,
     on_start: &mut dyn FnMut(&[String]),
-    progress: &mut dyn FnMut(Progress),
+    progress: &mut (dyn FnMut(Progress) + Send),
 ) -> Result<RunOutcome, RunFailure> {
     execute_with(scn, out_base, &RunOptions::default(), on_start, progress)
 }
@@ -133,7 +133,7 @@ pub fn execute_with(
     out_base: &Path,
     options: &RunOptions,
     on_start: &mut dyn FnMut(&[String]),
-    progress: &mut dyn FnMut(Progress),
+    progress: &mut (dyn FnMut(Progress) + Send),
 ) -> Result<RunOutcome, RunFailure> {
     // Everything that can be refused is refused before the folder is created.
     let model = scn

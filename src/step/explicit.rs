@@ -49,7 +49,7 @@ pub(crate) fn sweep(
     faces: Faces,
 ) -> kernel::BlockSums {
     let masked = m.has_land();
-    let pieced = kernel::pieced(m.grid.nx);
+    let pieced = kernel::pieced(m);
     crate::with_limiter!(limiter, K => {
         if masked {
             kernel::stage::<K, true>(m, src, base, out, blocks, rows_per_block, p, pieced, faces)
@@ -69,17 +69,30 @@ pub(crate) fn sweep(
     total
 }
 
-/// Row blocks for the kernel: a few per thread for balance (each recomputes one face row).
+/// Row blocks for the kernel: a few per thread for balance (each recomputes one face row), but
+/// no more than one per [`MIN_BLOCK_CELLS`] cells, so a small grid is not cut into pieces whose
+/// hand-over costs more than their work (a grid under that size runs as one block, on one
+/// thread).
 pub(crate) fn blocks_for(model: &Model) -> (Vec<Block>, usize) {
-    let ny = model.grid.ny;
-    let threads = rayon::current_num_threads().max(1);
-    let rows_per_block = ny.div_ceil(4 * threads).max(16).min(ny);
+    let (nx, ny) = (model.grid.nx, model.grid.ny);
+    let rows_per_block = rows_per_block(nx, ny, rayon::current_num_threads().max(1));
     let nblocks = ny.div_ceil(rows_per_block);
-    (
-        (0..nblocks).map(|_| Block::new(model.grid.nx)).collect(),
-        rows_per_block,
-    )
+    ((0..nblocks).map(|_| Block::new(nx)).collect(), rows_per_block)
 }
+
+/// Rows per kernel block of an `nx` by `ny` grid on `threads` threads (see [`blocks_for`]).
+fn rows_per_block(nx: usize, ny: usize, threads: usize) -> usize {
+    let by_threads = ny.div_ceil(4 * threads).max(16).min(ny);
+    let most = (nx * ny / MIN_BLOCK_CELLS).max(1);
+    if ny.div_ceil(by_threads) > most {
+        ny.div_ceil(most)
+    } else {
+        by_threads
+    }
+}
+
+/// Fewest cells per kernel block.
+pub(crate) const MIN_BLOCK_CELLS: usize = 8192;
 
 /// Explicit SSP Runge–Kutta stepper with its scratch.
 #[derive(Debug)]
@@ -212,5 +225,26 @@ pub(crate) fn tableau(stages: u8) -> (&'static [(f64, f64, f64)], &'static [f64]
             &[(0.0, 1.0, 0.0), (0.75, 0.25, 1.0), (1.0 / 3.0, 2.0 / 3.0, 0.5)],
             &[1.0 / 6.0, 1.0 / 6.0, 2.0 / 3.0],
         ),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn small_grids_run_in_few_blocks_and_large_ones_as_before() {
+        // 200 x 100 on 2 threads: 20,000 cells give two blocks of 50 rows, not seven of 16.
+        assert_eq!(rows_per_block(200, 100, 2), 50);
+        // Under 2 x MIN_BLOCK_CELLS: one block.
+        assert_eq!(rows_per_block(100, 100, 2), 100);
+        // Large grids keep four blocks per thread.
+        assert_eq!(rows_per_block(512, 512, 2), 64);
+        assert_eq!(rows_per_block(2048, 2048, 2), 256);
+        // Every row is in a block, and no block is empty.
+        for (nx, ny, t) in [(200, 100, 2), (37, 1000, 3), (5000, 3, 2), (1, 1, 1)] {
+            let rpb = rows_per_block(nx, ny, t);
+            assert!(rpb >= 1 && rpb <= ny && ny.div_ceil(rpb) * rpb >= ny);
+        }
     }
 }

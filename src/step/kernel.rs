@@ -14,8 +14,8 @@
 //! h_out` with `h = h0 + eta` at the base, source and output levels of the stage; without, the
 //! depth cancels and the kernel works in concentration units, as fast as before.
 //!
-//! Long rows (from [`PIECED_FROM`] cells) are swept in pieces of [`PIECE`] cells, x-faces and
-//! update together, and while a piece is computed the inputs the next row needs for the same
+//! When the grid's arrays outgrow the cache ([`pieced`]), rows are swept in pieces of [`PIECE`]
+//! cells, x-faces and update together, and while a piece is computed the inputs the next row needs for the same
 //! piece are prefetched into L2, so memory is read at an even pace rather than in bursts that
 //! the hardware prefetcher restarts at every page. The arithmetic is the same, bit for bit.
 
@@ -119,9 +119,14 @@ impl<'a> Faces<'a> {
     }
 }
 
-/// Whether rows of `nx` cells are swept in prefetched pieces (see [`PIECED_FROM`]).
-pub(crate) fn pieced(nx: usize) -> bool {
-    nx >= PIECED_FROM
+/// Whether a stage on this model sweeps its rows in prefetched pieces: when the arrays it
+/// streams (source, output, the two face arrays and the wet flags, plus the base and depths when
+/// present) exceed half the last-level cache, a step reads them from memory, and the sweep waits
+/// on memory unless the next row's inputs are fetched ahead. Below that the data is in cache
+/// from the step before, and whole rows are faster.
+pub(crate) fn pieced(m: &Model) -> bool {
+    let bytes_per_cell = 5 * 8 + 1 + if m.depth_field.is_some() { 3 * 8 } else { 0 };
+    m.grid.padded_len().saturating_mul(bytes_per_cell) > crate::par::last_level_cache_bytes() / 2
 }
 
 /// Runs one stage over all row blocks, the rows swept in prefetched pieces or whole (the
@@ -159,11 +164,6 @@ pub(crate) fn stage<K: LimiterKernel, const MASKED: bool>(
             }
         });
 }
-
-/// Rows at least this long are swept in pieces with the next row's inputs prefetched: four
-/// cell rows of the stencil then exceed a 48 KiB L1 and the sweep waits on memory; shorter
-/// rows run faster as whole rows (measured: prefetching there only costs).
-const PIECED_FROM: usize = 1536;
 
 /// Cells per piece of a row in the fused sweep (eight cache lines of `f64`).
 const PIECE: usize = 64;

@@ -522,7 +522,16 @@ impl Simulation {
     pub fn advance_to(
         &mut self,
         target: f64,
-        mut after_step: impl FnMut(&Simulation) -> ControlFlow<()>,
+        mut after_step: impl FnMut(&Simulation) -> ControlFlow<()> + Send,
+    ) -> Result<(), RunError> {
+        crate::par::in_pool(|| self.advance_in_pool(target, &mut after_step))
+    }
+
+    /// [`Self::advance_to`] once on a pool thread.
+    fn advance_in_pool(
+        &mut self,
+        target: f64,
+        after_step: &mut (impl FnMut(&Simulation) -> ControlFlow<()> + Send),
     ) -> Result<(), RunError> {
         while self.state.t < target {
             let remaining = target - self.state.t;
@@ -533,7 +542,7 @@ impl Simulation {
             };
             let dt = remaining / n;
             let last = n <= 1.0;
-            self.step(dt)?;
+            self.step_in_pool(dt)?;
             if last {
                 self.state.t = target;
             }
@@ -546,6 +555,11 @@ impl Simulation {
 
     /// One step of `dt` seconds: convection and diffusion, decay, then sources.
     pub fn step(&mut self, dt: f64) -> Result<(), RunError> {
+        crate::par::in_pool(|| self.step_in_pool(dt))
+    }
+
+    /// [`Self::step`] on a pool thread.
+    fn step_in_pool(&mut self, dt: f64) -> Result<(), RunError> {
         let Self {
             model,
             scheme,

@@ -61,7 +61,7 @@ fn march(
     sch: Scheme,
     f: impl Fn(f64, f64) -> f64,
     t: f64,
-    mut each: impl FnMut(&Simulation),
+    mut each: impl FnMut(&Simulation) + Send,
 ) -> Result<Simulation, String> {
     let model = Model::new(spec).map_err(|e| e.to_string())?;
     let c0 = model.field_from(f);

@@ -44,7 +44,7 @@ pub fn sim(spec: ModelSpec, scheme: Scheme, f: impl Fn(f64, f64) -> f64) -> Simu
 }
 
 /// Runs to `t`, calling `each` after every step.
-pub fn run_to(s: &mut Simulation, t: f64, mut each: impl FnMut(&Simulation)) {
+pub fn run_to(s: &mut Simulation, t: f64, mut each: impl FnMut(&Simulation) + Send) {
     s.advance_to(t, |s| {
         each(s);
         ControlFlow::Continue(())
