@@ -81,7 +81,7 @@ mod tests {
         assert!(on_pool);
         assert_eq!(v, 42);
         // Nested: already on the pool, runs in place.
-        let nested = in_pool(|| in_pool(|| rayon::current_thread_index()));
+        let nested = in_pool(|| in_pool(rayon::current_thread_index));
         assert!(nested.is_some());
     }
 }
