@@ -260,13 +260,13 @@ pub fn execute_with(
             receptors.record(0.0, 0.0, &sim.state.c);
             write_frame(
                 sim.state.t,
-                sim.field(),
+                grid.interior(&sim.state.c),
                 &mut fields,
                 &mut frame_records,
                 &mut output_seconds,
             )
             .map_err(setup)?;
-            plume.observe(&grid, sim.state.t, &sim.field(), &wet);
+            plume.observe(&grid, sim.state.t, sim.field_view(), sim.model.mask.view());
         }
     }
     let mut logs = logs::RunLogs::create(&dir, &rows, &receptors, exceed.as_ref()).map_err(setup)?;
@@ -413,13 +413,13 @@ pub fn execute_with(
         }
         write_frame(
             sim.state.t,
-            sim.field(),
+            grid.interior(&sim.state.c),
             &mut fields,
             &mut frame_records,
             &mut output_seconds,
         )
         .map_err(fail)?;
-        plume.observe(&grid, sim.state.t, &sim.field(), &wet);
+        plume.observe(&grid, sim.state.t, sim.field_view(), sim.model.mask.view());
         written += 1;
     }
     // The last checkpoint: a completed run resumed only rewrites its results.
