@@ -456,15 +456,8 @@ impl Simulation {
         Self::from_padded(model, scheme, padded)
     }
 
-    /// Starts a run from a padded field (`Grid::padded_len` values), as [`Self::new`].
-    pub fn from_padded(model: Model, scheme: Scheme, mut initial: Vec<f64>) -> Result<Self, ModelError> {
-        if initial.len() != model.grid.padded_len() {
-            return Err(invalid(
-                "initial field length",
-                initial.len(),
-                format!("{} (padded grid)", model.grid.padded_len()),
-            ));
-        }
+    /// Starts a run from a padded field of this grid (from `Grid::padded_from`), as `new`.
+    fn from_padded(model: Model, scheme: Scheme, mut initial: Vec<f64>) -> Result<Self, ModelError> {
         let dt_max = max_step(&model, &scheme)?;
         let mut c = model.grid.interior_view_mut(&mut initial);
         for ((j, i), v) in c.indexed_iter_mut() {
