@@ -104,7 +104,7 @@ pub struct PeerDiagnostics {
 pub fn peer_diagnostics(sim: &Simulation) -> PeerDiagnostics {
     let g = &sim.model.grid;
     let n = g.nx;
-    let f = sim.field();
+    let f = g.interior(&sim.state.c);
     let h = g.dx;
     let at = |i: usize, j: usize| f[j * n + i];
     PeerDiagnostics {

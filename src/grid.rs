@@ -4,6 +4,10 @@
 //! Cell (i, j) has its centre at (x0 + (i + 1/2) dx, y0 + (j + 1/2) dy); j = 0 is the south row.
 //! Cell fields are stored row-major (j outer, i inner) on a padded array of
 //! (nx + 4) by (ny + 4) values, so that limiter stencils two cells wide never leave the array.
+//! [`Grid::interior_view`] lends the interior of such an array as an `ndarray` view of shape
+//! (ny, nx), in (y, x) order with row 0 south, without copying (strides (nx + 4, 1)).
+
+use ndarray::{s, Array2, ArrayView2, ArrayViewMut2};
 
 use crate::error::{finite, invalid, positive, ModelError};
 
@@ -127,11 +131,64 @@ impl Grid {
     /// Copies the interior of a padded array into a new `nx * ny` row-major vector.
     pub fn interior(&self, padded: &[f64]) -> Vec<f64> {
         let mut out = Vec::with_capacity(self.cells());
-        for j in 0..self.ny {
-            let s = self.idx(0, j as isize);
-            out.extend_from_slice(&padded[s..s + self.nx]);
+        for row in self.interior_view(padded).rows() {
+            out.extend(row.iter().copied());
         }
         out
+    }
+
+    /// Shape (ny, nx) of an interior array in (y, x) order.
+    pub fn shape(&self) -> (usize, usize) {
+        (self.ny, self.nx)
+    }
+
+    /// The interior of a padded array as a zero-copy view of shape (ny, nx), (y, x) order,
+    /// row 0 south: `view[[j, i]]` is cell (i, j).
+    ///
+    /// # Panics
+    /// If `padded` is not [`Self::padded_len`] long (fields built for this grid always are).
+    pub fn interior_view<'a, T>(&self, padded: &'a [T]) -> ArrayView2<'a, T> {
+        let (h, w) = (self.ny + 2 * HALO, self.stride());
+        ArrayView2::from_shape((h, w), padded)
+            .expect("a padded array of this grid")
+            .slice_move(s![HALO..HALO + self.ny, HALO..HALO + self.nx])
+    }
+
+    /// The interior of a padded array as a zero-copy mutable view, as [`Self::interior_view`].
+    ///
+    /// # Panics
+    /// If `padded` is not [`Self::padded_len`] long.
+    pub fn interior_view_mut<'a, T>(&self, padded: &'a mut [T]) -> ArrayViewMut2<'a, T> {
+        let (h, w) = (self.ny + 2 * HALO, self.stride());
+        ArrayViewMut2::from_shape((h, w), padded)
+            .expect("a padded array of this grid")
+            .slice_move(s![HALO..HALO + self.ny, HALO..HALO + self.nx])
+    }
+
+    /// Checks that an interior array `what` has shape (ny, nx); the error names both shapes.
+    pub fn check_shape(&self, what: &str, shape: &[usize]) -> Result<(), ModelError> {
+        if shape == [self.ny, self.nx] {
+            return Ok(());
+        }
+        Err(invalid(
+            format!("{what} (shape)"),
+            format!("{shape:?}"),
+            format!("(ny, nx) = ({}, {}), rows south to north", self.ny, self.nx),
+        ))
+    }
+
+    /// A zeroed padded array whose interior is a copy of `interior` (shape (ny, nx), row 0
+    /// south); another shape is a [`ModelError`] naming `what` and both shapes.
+    pub fn padded_from(&self, what: &str, interior: ArrayView2<f64>) -> Result<Vec<f64>, ModelError> {
+        self.check_shape(what, interior.shape())?;
+        let mut c = crate::field::huge_filled(self.padded_len(), 0.0);
+        self.interior_view_mut(&mut c).assign(&interior);
+        Ok(c)
+    }
+
+    /// A copy of the interior of a padded array, shape (ny, nx), standard layout.
+    pub fn interior_array(&self, padded: &[f64]) -> Array2<f64> {
+        self.interior_view(padded).to_owned()
     }
 }
 
@@ -196,6 +253,11 @@ impl Mask {
         &self.wet
     }
 
+    /// The flags as a view of shape (ny, nx), (y, x) order, row 0 south (`true` = water).
+    pub fn view(&self) -> ArrayView2<'_, bool> {
+        ArrayView2::from_shape((self.ny, self.nx), &self.wet).expect("nx * ny flags")
+    }
+
     /// Number of water cells.
     pub fn wet_count(&self) -> usize {
         self.wet.iter().filter(|&&w| w).count()
@@ -223,6 +285,48 @@ mod tests {
         assert_eq!(g.cell_at(18.0, -2.0), Some((3, 2)));
         assert_eq!(g.cell_at(18.1, -2.0), None);
         assert_eq!(g.cell_at(f64::NAN, 0.0), None);
+    }
+
+    #[test]
+    fn interior_view_is_zero_copy_in_y_x_order() {
+        let g = Grid::new(4, 3, 1.0, 1.0, 0.0, 0.0).unwrap();
+        // Each interior cell holds 10 j + i, so (y, x) order is visible in the values.
+        let mut p = vec![-1.0; g.padded_len()];
+        for j in 0..3 {
+            for i in 0..4 {
+                p[g.idx(i, j)] = (10 * j + i) as f64;
+            }
+        }
+        let v = g.interior_view(&p);
+        assert_eq!(v.shape(), &[3, 4]);
+        assert_eq!(v.strides(), &[g.stride() as isize, 1]);
+        assert!(
+            std::ptr::eq(&v[[0, 0]], &p[g.idx(0, 0)]),
+            "the view borrows, it does not copy"
+        );
+        assert!(std::ptr::eq(&v[[2, 3]], &p[g.idx(3, 2)]));
+        assert_eq!(v[[2, 1]], 21.0);
+        assert_eq!(g.interior(&p), v.iter().copied().collect::<Vec<_>>());
+        assert!(v.iter().all(|&x| x >= 0.0), "no halo value leaks into the view");
+        let back = g.padded_from("test field", v).unwrap();
+        assert_eq!(g.interior_view(&back), g.interior_view(&p));
+        assert_eq!(back[0], 0.0);
+        g.interior_view_mut(&mut p)[[1, 2]] = 7.0;
+        assert_eq!(p[g.idx(2, 1)], 7.0);
+    }
+
+    #[test]
+    fn wrong_shapes_name_both() {
+        let g = Grid::new(4, 3, 1.0, 1.0, 0.0, 0.0).unwrap();
+        let a = Array2::<f64>::zeros((4, 3));
+        let e = g.padded_from("initial field", a.view()).unwrap_err().to_string();
+        assert!(
+            e.contains("initial field") && e.contains("[4, 3]") && e.contains("(3, 4)"),
+            "{e}"
+        );
+        let m = Mask::all_water(&g).with_land(&g, |x, _| x < 1.0).unwrap();
+        assert_eq!(m.view().shape(), &[3, 4]);
+        assert!(!m.view()[[2, 0]] && m.view()[[2, 1]]);
     }
 
     #[test]

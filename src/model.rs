@@ -235,14 +235,22 @@ impl Model {
         self.diffusion_rate
     }
 
-    /// A zeroed padded field.
-    pub fn zero_field(&self) -> Vec<f64> {
-        vec![0.0; self.grid.padded_len()]
+    /// A zeroed interior field of shape (ny, nx).
+    pub fn zero_field(&self) -> ndarray::Array2<f64> {
+        ndarray::Array2::zeros(self.grid.shape())
     }
 
-    /// A padded field from a function of the cell centre (zero on land).
-    pub fn field_from(&self, f: impl Fn(f64, f64) -> f64) -> Vec<f64> {
-        crate::field::fill_from(&self.grid, &self.mask, f)
+    /// An interior field of shape (ny, nx) ((y, x) order, row 0 south) from a function of
+    /// the cell centre (zero on land).
+    pub fn field_from(&self, f: impl Fn(f64, f64) -> f64) -> ndarray::Array2<f64> {
+        ndarray::Array2::from_shape_fn(self.grid.shape(), |(j, i)| {
+            if self.mask.is_wet(i, j) {
+                let (x, y) = self.grid.centre(i, j);
+                f(x, y)
+            } else {
+                0.0
+            }
+        })
     }
 }
 

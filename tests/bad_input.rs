@@ -158,7 +158,21 @@ fn fixed_step_above_the_stability_bound_is_refused_with_the_bound() {
 fn non_finite_initial_values_are_refused() {
     let model = Model::new(base()).unwrap();
     let mut c0 = model.zero_field();
-    c0[model.grid.idx(3, 4)] = f64::NAN;
+    c0[[4, 3]] = f64::NAN; // cell (i, j) = (3, 4): arrays are in (y, x) order
     let e = Simulation::new(model, Scheme::default(), c0).unwrap_err().to_string();
     assert!(e.contains("(3, 4)"), "{e}");
+}
+
+#[test]
+fn initial_fields_of_another_shape_are_refused_naming_both_shapes() {
+    let model = Model::new(base()).unwrap();
+    let (ny, nx) = model.grid.shape();
+    // (nx, ny) is the transposed shape a caller thinking in (x, y) order would pass.
+    let e = Simulation::new(model, Scheme::default(), ndarray::Array2::<f64>::zeros((nx, ny))).unwrap_err();
+    assert!(matches!(e, ModelError::InvalidValue { .. }), "{e}");
+    let e = e.to_string();
+    assert!(
+        e.contains("initial field") && e.contains(&format!("[{nx}, {ny}]")) && e.contains(&format!("({ny}, {nx})")),
+        "{e}"
+    );
 }

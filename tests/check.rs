@@ -246,7 +246,7 @@ fn upwind_numerical_diffusivity_map_matches_the_modified_equation_and_the_measur
     // And a run spreads at that rate (variance growth 2 K t, as in the engine's test).
     let c0 = model.field_from(|x, y| (-((x - 80.0).powi(2) + (y - 50.0).powi(2)) / 50.0).exp());
     let mut sim = Simulation::new(model, sch, c0).unwrap();
-    let m = |s: &Simulation| tinct::diagnostics::moments::moments(&s.model.grid, &s.field(), None).unwrap();
+    let m = |s: &Simulation| tinct::diagnostics::moments::moments(&s.model.grid, s.field_view(), None).unwrap();
     let a = m(&sim);
     sim.advance_to(160.0, |_| std::ops::ControlFlow::Continue(())).unwrap();
     let (ex, ey) = tinct::diagnostics::moments::effective_diffusivity(&a, &m(&sim), 160.0);

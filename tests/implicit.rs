@@ -65,7 +65,7 @@ fn temporal_order_at_diffusion_number_10_by_self_convergence() {
             .iter()
             .map(|&dt| diffusion_run(implicit(time, Limiter::Upwind, Some(dt))))
             .collect();
-        let f: Vec<Vec<f64>> = runs.iter().map(|s| s.field()).collect();
+        let f: Vec<Vec<f64>> = runs.iter().map(|s| s.field().into_iter().collect()).collect();
         let p = (diff_l1(&f[0], &f[1]) / diff_l1(&f[1], &f[2])).log2();
         let e_fine = l1_error(&runs[2], &exact);
         eprintln!(
@@ -144,7 +144,11 @@ fn puff_error(scheme: Scheme) -> (f64, Vec<f64>, f64) {
     let mut s = sim(sp, scheme, move |x, y| exact(x, y, t0));
     let mut worst = 0.0f64;
     run_to(&mut s, t1 - t0, |s| worst = worst.max(s.budget_row().residual.abs()));
-    (l1_error(&s, move |x, y| exact(x, y, t1)), s.field(), worst)
+    (
+        l1_error(&s, move |x, y| exact(x, y, t1)),
+        s.field().into_iter().collect(),
+        worst,
+    )
 }
 
 #[test]

@@ -142,7 +142,7 @@ fn closed_basin_with_island_source_and_decay_closes_the_budget_every_step() {
     for j in 0..grid.ny {
         for i in 0..grid.nx {
             if !s.model.mask.is_wet(i, j) {
-                assert_eq!(f[j * grid.nx + i], 0.0);
+                assert_eq!(f[[j, i]], 0.0);
             }
         }
     }

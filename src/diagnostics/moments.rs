@@ -2,6 +2,8 @@
 //! diffusivity implied by the growth of the second moments (for a single release the variance
 //! of a diffusing plume grows as `2 K t` along each axis; Taylor 1921, common practice).
 
+use ndarray::ArrayView2;
+
 use crate::grid::Grid;
 
 /// Zeroth, first and second moments of a non-negative field.
@@ -19,39 +21,32 @@ pub struct Moments {
     pub var_y: f64,
 }
 
-/// Moments of `field` (`nx * ny`, row-major, row 0 south) over `wet` cells; negative values
-/// (undershoots) are counted as zero so they cannot make a variance negative.
-pub fn moments(grid: &Grid, field: &[f64], wet: Option<&[bool]>) -> Option<Moments> {
+/// Moments of `field` (shape (ny, nx), (y, x) order, row 0 south) over `wet` cells; negative
+/// values (undershoots) are counted as zero so they cannot make a variance negative.
+pub fn moments(grid: &Grid, field: ArrayView2<f64>, wet: Option<ArrayView2<bool>>) -> Option<Moments> {
     let xs = grid.xs();
     let ys = grid.ys();
+    // The water cells with their centres and non-negative values, row by row from the south.
+    let cells = || {
+        field
+            .indexed_iter()
+            .filter(|&((j, i), _)| wet.as_ref().is_none_or(|w| w[[j, i]]))
+            .map(|((j, i), &c)| (xs[i], ys[j], c.max(0.0)))
+    };
     let (mut m, mut mx, mut my) = (0.0, 0.0, 0.0);
-    for (j, &y) in ys.iter().enumerate() {
-        for (i, &x) in xs.iter().enumerate() {
-            let k = j * grid.nx + i;
-            if wet.is_some_and(|w| !w[k]) {
-                continue;
-            }
-            let c = field[k].max(0.0);
-            m += c;
-            mx += c * x;
-            my += c * y;
-        }
+    for (x, y, c) in cells() {
+        m += c;
+        mx += c * x;
+        my += c * y;
     }
     if !(m > 0.0) {
         return None;
     }
     let (xb, yb) = (mx / m, my / m);
     let (mut vx, mut vy) = (0.0, 0.0);
-    for (j, &y) in ys.iter().enumerate() {
-        for (i, &x) in xs.iter().enumerate() {
-            let k = j * grid.nx + i;
-            if wet.is_some_and(|w| !w[k]) {
-                continue;
-            }
-            let c = field[k].max(0.0);
-            vx += c * (x - xb).powi(2);
-            vy += c * (y - yb).powi(2);
-        }
+    for (x, y, c) in cells() {
+        vx += c * (x - xb).powi(2);
+        vy += c * (y - yb).powi(2);
     }
     Some(Moments {
         total: m * grid.cell_area(),
@@ -75,17 +70,14 @@ mod tests {
     #[test]
     fn gaussian_moments_and_growth() {
         let g = Grid::new(200, 100, 0.5, 0.5, 0.0, 0.0).unwrap();
-        let field = |s: f64| -> Vec<f64> {
-            let mut f = Vec::new();
-            for y in g.ys() {
-                for x in g.xs() {
-                    f.push((-((x - 40.0).powi(2) + (y - 25.0).powi(2)) / (2.0 * s * s)).exp());
-                }
-            }
-            f
+        let (xs, ys) = (g.xs(), g.ys());
+        let field = |s: f64| {
+            ndarray::Array2::from_shape_fn(g.shape(), |(j, i)| {
+                (-((xs[i] - 40.0).powi(2) + (ys[j] - 25.0).powi(2)) / (2.0 * s * s)).exp()
+            })
         };
-        let a = moments(&g, &field(3.0), None).unwrap();
-        let b = moments(&g, &field(4.0), None).unwrap();
+        let a = moments(&g, field(3.0).view(), None).unwrap();
+        let b = moments(&g, field(4.0).view(), None).unwrap();
         assert!((a.x - 40.0).abs() < 1e-9 && (a.y - 25.0).abs() < 1e-9);
         // Sampled at half-metre cells the discrete variance is s^2 to well within 0.1%.
         assert!((a.var_x / 9.0 - 1.0).abs() < 1e-3, "{}", a.var_x);
@@ -94,6 +86,6 @@ mod tests {
             (kx - 7.0 / 20.0).abs() < 1e-3 && (ky - 7.0 / 20.0).abs() < 1e-3,
             "{kx} {ky}"
         );
-        assert!(moments(&g, &vec![0.0; g.cells()], None).is_none());
+        assert!(moments(&g, ndarray::Array2::zeros(g.shape()).view(), None).is_none());
     }
 }

@@ -519,12 +519,12 @@ pub fn memory_estimate(model: &Model, scheme: &Scheme) -> f64 {
     base + stepper
 }
 
-/// Times up to `max_steps` (1 to 3) real steps of `dt` from `initial` (a padded field) and
+/// Times up to `max_steps` (1 to 3) real steps of `dt` from `initial` (an interior field) and
 /// estimates the run's cost to `end` seconds. Grids above four million cells take one step.
 pub fn measure_cost(
     model: &Model,
     scheme: &Scheme,
-    initial: Vec<f64>,
+    initial: ndarray::Array2<f64>,
     dt: f64,
     end: f64,
     max_steps: usize,

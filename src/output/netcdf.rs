@@ -23,6 +23,7 @@ use std::io::{self, BufWriter, Seek, SeekFrom, Write};
 use std::path::{Path, PathBuf};
 use std::sync::{Arc, Mutex};
 
+use ndarray::ArrayView2;
 use netcdf3::{DataSet, FileWriter, Version};
 
 use super::{AtomicFile, OutputError};
@@ -324,31 +325,38 @@ impl FieldsWriter {
         self.sink.with(|w| w.flush()).map_err(|e| OutputError::io(tmp, e))
     }
 
-    /// Appends one record: `values` has `ny * nx` entries, row-major with
-    /// row 0 the southern row; cells with `wet[k] == false` and NaN values
-    /// are written as [`FILL_VALUE`].
-    pub fn write_record(&mut self, time_s: f64, values: &[f64], wet: Option<&[bool]>) -> Result<(), OutputError> {
-        let n = self.nx * self.ny;
-        let target = self.atomic.target();
+    /// Checks that `what` has shape (ny, nx).
+    fn check_shape(&self, what: &str, shape: &[usize]) -> Result<(), OutputError> {
+        if shape == [self.ny, self.nx] {
+            return Ok(());
+        }
+        Err(OutputError::invalid(
+            self.atomic.target(),
+            format!(
+                "{what} has shape {shape:?}, expected (ny, nx) = ({}, {})",
+                self.ny, self.nx
+            ),
+        ))
+    }
+
+    /// Appends one record: `values` of shape (ny, nx), (y, x) order with row 0
+    /// the southern row (any strides: a view of a padded field is fine);
+    /// cells where `wet` is false and NaN values are written as [`FILL_VALUE`].
+    pub fn write_record(
+        &mut self,
+        time_s: f64,
+        values: ArrayView2<f64>,
+        wet: Option<ArrayView2<bool>>,
+    ) -> Result<(), OutputError> {
         if self.written >= self.n_records {
             return Err(OutputError::invalid(
-                target,
+                self.atomic.target(),
                 format!("all {} announced records already written", self.n_records),
             ));
         }
-        if values.len() != n {
-            return Err(OutputError::invalid(
-                target,
-                format!("record has {} values, expected ny*nx = {n}", values.len()),
-            ));
-        }
-        if let Some(w) = wet {
-            if w.len() != n {
-                return Err(OutputError::invalid(
-                    target,
-                    format!("wet mask has {} entries, expected ny*nx = {n}", w.len()),
-                ));
-            }
+        self.check_shape("record", values.shape())?;
+        if let Some(w) = &wet {
+            self.check_shape("wet mask", w.shape())?;
         }
         let mut record = std::mem::take(&mut self.record);
         record.clear();
@@ -356,7 +364,7 @@ impl FieldsWriter {
             Some(w) => record.extend(
                 values
                     .iter()
-                    .zip(w)
+                    .zip(&w)
                     .map(|(&v, &wet)| if wet && !v.is_nan() { v } else { FILL_VALUE }),
             ),
             None => record.extend(values.iter().map(|&v| if v.is_nan() { FILL_VALUE } else { v })),
@@ -377,21 +385,17 @@ impl FieldsWriter {
         })
     }
 
-    /// Writes the envelope `c_max(y, x)`: `values` has `ny * nx` entries, row 0 south; land and
+    /// Writes the envelope `c_max(y, x)`: `values` of shape (ny, nx), row 0 south; land and
     /// NaN become [`FILL_VALUE`].
-    pub fn write_max(&mut self, values: &[f64], wet: Option<&[bool]>) -> Result<(), OutputError> {
-        let n = self.nx * self.ny;
-        if values.len() != n {
-            return Err(OutputError::invalid(
-                self.atomic.target(),
-                format!("c_max has {} values, expected ny*nx = {n}", values.len()),
-            ));
+    pub fn write_max(&mut self, values: ArrayView2<f64>, wet: Option<ArrayView2<bool>>) -> Result<(), OutputError> {
+        self.check_shape("c_max", values.shape())?;
+        if let Some(w) = &wet {
+            self.check_shape("wet mask", w.shape())?;
         }
         let data: Vec<f64> = values
-            .iter()
-            .enumerate()
-            .map(|(k, &v)| {
-                if wet.is_none_or(|w| w[k]) && !v.is_nan() {
+            .indexed_iter()
+            .map(|(jk, &v)| {
+                if wet.as_ref().is_none_or(|w| w[jk]) && !v.is_nan() {
                     v
                 } else {
                     FILL_VALUE
@@ -479,6 +483,11 @@ mod tests {
         (0..nx * ny).map(|k| (r * 1000 + k) as f64 * 0.5).collect()
     }
 
+    /// `v` as one row of cells (ny = 1).
+    fn row(v: &[f64]) -> ArrayView2<'_, f64> {
+        ArrayView2::from_shape((1, v.len()), v).unwrap()
+    }
+
     #[test]
     fn fill_value_is_the_netcdf_default() {
         assert_eq!(FILL_VALUE, netcdf3::NC_FILL_F64);
@@ -491,9 +500,9 @@ mod tests {
         let (nx, ny) = (4, 3);
         let x: Vec<f64> = (0..nx).map(|i| 5.0 + 10.0 * i as f64).collect();
         let y: Vec<f64> = (0..ny).map(|j| 2.5 + 5.0 * j as f64).collect();
-        let mut wet = vec![true; nx * ny];
-        wet[1] = false; // south row, i = 1
-        wet[2 * nx + 3] = false; // north row, i = 3
+        let mut wet = ndarray::Array2::from_elem((ny, nx), true);
+        wet[[0, 1]] = false; // south row, i = 1
+        wet[[2, 3]] = false; // north row, i = 3
         let times = [0.0, 600.0, 1200.0];
         let meta = FieldMeta {
             standard_name: Some("mass_concentration_of_dye_in_sea_water"),
@@ -503,11 +512,15 @@ mod tests {
         for (r, t) in times.iter().enumerate() {
             let mut v = field(nx, ny, r);
             v[5] = f64::NAN;
-            w.write_record(*t, &v, Some(&wet)).unwrap();
+            let v = ArrayView2::from_shape((ny, nx), &v).unwrap();
+            w.write_record(*t, v, Some(wet.view())).unwrap();
             assert!(!p.exists(), "target must appear only on finish");
         }
         assert_eq!(w.records_written(), 3);
-        assert!(w.write_record(1800.0, &field(nx, ny, 3), None).is_err());
+        let f3 = field(nx, ny, 3);
+        assert!(w
+            .write_record(1800.0, ArrayView2::from_shape((ny, nx), &f3).unwrap(), None)
+            .is_err());
         w.finish().unwrap();
 
         let mut r = FileReader::open(&p).unwrap();
@@ -552,7 +565,7 @@ mod tests {
             let expect = field(nx, ny, rec);
             for k in 0..nx * ny {
                 let got = c[rec * nx * ny + k];
-                if !wet[k] || k == 5 {
+                if !wet[[k / nx, k % nx]] || k == 5 {
                     assert_eq!(got, FILL_VALUE, "record {rec} cell {k}");
                 } else {
                     assert_eq!(got, expect[k], "record {rec} cell {k}");
@@ -573,7 +586,7 @@ mod tests {
             ..META
         };
         let mut w = FieldsWriter::create(&p, &[0.0, 1.0], &[0.0], 1, &meta).unwrap();
-        w.write_record(0.0, &[1.0, 2.0], None).unwrap();
+        w.write_record(0.0, row(&[1.0, 2.0]), None).unwrap();
         assert!(w.write_hours_above(&[vec![1.0, 2.0]], None).is_err());
         w.write_hours_above(&[vec![1.0, 2.0], vec![0.5, f64::NAN]], Some(&[true, true]))
             .unwrap();
@@ -594,7 +607,7 @@ mod tests {
         let d = tempfile::tempdir().unwrap();
         let p = d.path().join("short.nc");
         let mut w = FieldsWriter::create(&p, &[0.0, 1.0], &[0.0], 4, &META).unwrap();
-        w.write_record(10.0, &[1.0, 2.0], None).unwrap();
+        w.write_record(10.0, row(&[1.0, 2.0]), None).unwrap();
         w.finish().unwrap();
         let mut r = FileReader::open(&p).unwrap();
         assert_eq!(r.data_set().dim_size("time"), Some(4));
@@ -612,7 +625,8 @@ mod tests {
         let p = d.path().join("dropped.nc");
         {
             let mut w = FieldsWriter::create(&p, &[0.0, 1.0], &[0.0, 1.0], 2, &META).unwrap();
-            w.write_record(0.0, &[1.0; 4], None).unwrap();
+            w.write_record(0.0, ArrayView2::from_shape((2, 2), &[1.0; 4]).unwrap(), None)
+                .unwrap();
         }
         assert!(!p.exists());
         assert_eq!(std::fs::read_dir(d.path()).unwrap().count(), 0);
@@ -629,9 +643,13 @@ mod tests {
         }
         assert!(FieldsWriter::create(&p, &[], &[0.0], 1, &META).is_err());
         let mut w = FieldsWriter::create(&p, &[0.0, 1.0], &[0.0], 1, &META).unwrap();
-        assert!(w.write_record(0.0, &[1.0], None).is_err());
-        assert!(w.write_record(0.0, &[1.0, 2.0], Some(&[true])).is_err());
-        w.write_record(0.0, &[1.0, 2.0], None).unwrap();
+        assert!(w.write_record(0.0, row(&[1.0]), None).is_err());
+        let transposed = ArrayView2::from_shape((2, 1), &[1.0, 2.0]).unwrap();
+        let e = w.write_record(0.0, transposed, None).unwrap_err().to_string();
+        assert!(e.contains("[2, 1]") && e.contains("(1, 2)"), "{e}");
+        let one_flag = ndarray::Array2::from_elem((1, 1), true);
+        assert!(w.write_record(0.0, row(&[1.0, 2.0]), Some(one_flag.view())).is_err());
+        w.write_record(0.0, row(&[1.0, 2.0]), None).unwrap();
         w.finish().unwrap();
         assert!(p.exists());
     }

@@ -5,6 +5,7 @@
 use std::path::Path;
 
 use image::{Rgb, RgbImage};
+use ndarray::ArrayView2;
 
 use super::colour::{normalise, ColourScale, Ramp, RampLut, LAND_RGB};
 use super::draw::{outline, INK};
@@ -20,11 +21,12 @@ const LABEL_LINE: u32 = 18;
 const TITLE_BAND: u32 = 40;
 const BAR_H: u32 = 16;
 
-/// One map tile: values (`nx * ny`, row-major, row 0 south) and the label lines under it.
+/// One map tile: values (shape (ny, nx), (y, x) order, row 0 south) and the label lines
+/// under it.
 #[derive(Debug, Clone)]
 pub struct Tile<'a> {
     /// The field.
-    pub values: &'a [f64],
+    pub values: ArrayView2<'a, f64>,
     /// Text lines drawn under the tile.
     pub lines: Vec<String>,
 }
@@ -100,13 +102,13 @@ fn fmt_num(v: f64) -> String {
 
 /// Renders the panel: every tile on the colour range `range` mapped by `scale` (a log scale
 /// needs a positive `lo`; values at or below it take the bottom colour), labels under each
-/// tile, the title on top and one colour bar with `caption` at the bottom. `wet` (`nx * ny`)
-/// shades land.
+/// tile, the title on top and one colour bar with `caption` at the bottom. `wet` (shape
+/// (ny, nx)) shades land; a tile of another shape is left blank.
 #[allow(clippy::too_many_arguments)]
 pub fn render_panel(
     nx: usize,
     ny: usize,
-    wet: Option<&[bool]>,
+    wet: Option<ArrayView2<bool>>,
     tiles: &[Tile],
     range: (f64, f64),
     scale: ColourScale,
@@ -119,17 +121,16 @@ pub fn render_panel(
     let (lo, hi) = range;
     draw_text(&mut img, title, TILE_GAP as f32, 10.0, 18.0, INK);
     for (tile, &(ox, oy)) in tiles.iter().zip(&lay.origins) {
-        if tile.values.len() != nx * ny {
+        if tile.values.dim() != (ny, nx) || wet.is_some_and(|w| w.dim() != (ny, nx)) {
             continue;
         }
         for py in 0..lay.tile_h {
             let j = ny - 1 - ((py as usize * ny) / lay.tile_h as usize).min(ny - 1);
             for px in 0..lay.tile_w {
                 let i = ((px as usize * nx) / lay.tile_w as usize).min(nx - 1);
-                let k = j * nx + i;
                 let rgb = match wet {
-                    Some(w) if !w[k] => LAND_RGB,
-                    _ => lut.get(normalise(tile.values[k], lo, hi, scale)),
+                    Some(w) if !w[[j, i]] => LAND_RGB,
+                    _ => lut.get(normalise(tile.values[[j, i]], lo, hi, scale)),
                 };
                 img.put_pixel(ox + px, oy + py, Rgb(rgb));
             }
@@ -196,10 +197,10 @@ mod tests {
         let lay = panel_layout(5, 40, 20);
         assert_eq!(lay.origins.len(), 5);
         assert_eq!((lay.cols, lay.rows), (4, 2));
-        let vals: Vec<f64> = (0..800).map(|k| k as f64).collect();
+        let vals = ndarray::Array2::from_shape_fn((20, 40), |(j, i)| (j * 40 + i) as f64);
         let tiles: Vec<Tile> = (0..5)
             .map(|k| Tile {
-                values: &vals,
+                values: vals.view(),
                 lines: vec![format!("tile {k}")],
             })
             .collect();
@@ -218,11 +219,11 @@ mod tests {
         // bottom colour, as the background water); on the frames' log scale (four decades
         // under the peak, DESIGN §5 frames) it sits a quarter of the way up.
         let (nx, ny) = (20, 10);
-        let mut vals = vec![0.0; nx * ny];
-        vals[5 * nx + 15] = 1.0; // the peak
-        vals[5 * nx + 4] = 1e-3; // the faint plume, cell (4, 5)
+        let mut vals = ndarray::Array2::zeros((ny, nx));
+        vals[[5, 15]] = 1.0; // the peak
+        vals[[5, 4]] = 1e-3; // the faint plume, cell (4, 5)
         let tiles = [Tile {
-            values: &vals,
+            values: vals.view(),
             lines: vec![],
         }];
         let lay = panel_layout(1, nx, ny);

@@ -23,6 +23,7 @@ use crate::output::{self, FieldMeta, FieldsWriter, OutputError};
 use crate::scenario::Scenario;
 use crate::step::Simulation;
 use crate::RunError;
+use ndarray::ArrayView2;
 use receptors::ReceptorLog;
 use std::ops::ControlFlow;
 use std::path::{Path, PathBuf};
@@ -187,6 +188,7 @@ pub fn execute_with(
     output::write_atomic(&dir.join("scenario.toml"), scn.resolved_toml().as_bytes()).map_err(setup)?;
 
     let wet: Vec<bool> = sim.model.mask.as_slice().to_vec();
+    let wet_yx = sim.model.mask.view().to_owned();
     let n_frames = scn.run.frames;
     let title = format!("{} ({})", scn.name, scn.scheme.limiter.name());
     let history = format!("tinct {} run {}", env!("CARGO_PKG_VERSION"), scn.path.display());
@@ -236,7 +238,7 @@ pub fn execute_with(
                        secs: &mut f64|
      -> Result<(), OutputError> {
         let t0 = Instant::now();
-        let r = fields.write_record(t, &values, Some(&wet));
+        let r = cells_view(&grid, &values, &nc_path).and_then(|v| fields.write_record(t, v, Some(wet_yx.view())));
         records.push(checkpoint::FrameRecord { time: t, values });
         *secs += t0.elapsed().as_secs_f64();
         r
@@ -260,13 +262,13 @@ pub fn execute_with(
             receptors.record(0.0, 0.0, &sim.state.c);
             write_frame(
                 sim.state.t,
-                sim.field(),
+                grid.interior(&sim.state.c),
                 &mut fields,
                 &mut frame_records,
                 &mut output_seconds,
             )
             .map_err(setup)?;
-            plume.observe(&grid, sim.state.t, &sim.field(), &wet);
+            plume.observe(&grid, sim.state.t, sim.field_view(), sim.model.mask.view());
         }
     }
     let mut logs = logs::RunLogs::create(&dir, &rows, &receptors, exceed.as_ref()).map_err(setup)?;
@@ -413,13 +415,13 @@ pub fn execute_with(
         }
         write_frame(
             sim.state.t,
-            sim.field(),
+            grid.interior(&sim.state.c),
             &mut fields,
             &mut frame_records,
             &mut output_seconds,
         )
         .map_err(fail)?;
-        plume.observe(&grid, sim.state.t, &sim.field(), &wet);
+        plume.observe(&grid, sim.state.t, sim.field_view(), sim.model.mask.view());
         written += 1;
     }
     // The last checkpoint: a completed run resumed only rewrites its results.
@@ -439,7 +441,7 @@ pub fn execute_with(
     let finish = || -> Result<(RunSummary, Result<(), OutputError>), OutputError> {
         let writing = Instant::now();
         logs.sync()?;
-        fields.write_max(&envelope.c_max, Some(&wet))?;
+        fields.write_max(cells_view(&grid, &envelope.c_max, &nc_path)?, Some(wet_yx.view()))?;
         if let Some(e) = &exceed {
             fields.write_hours_above(&e.hours_above(), Some(&wet))?;
         }
@@ -670,4 +672,23 @@ fn remove_stale_frames(frames_dir: &Path, count: usize) {
             let _ = std::fs::remove_file(e.path());
         }
     }
+}
+
+/// `values` (`nx * ny`, row 0 south, as a checkpoint keeps them) as a (ny, nx) view; another
+/// length (a damaged record) is an output error naming `path`.
+fn cells_view<'a>(
+    grid: &crate::grid::Grid,
+    values: &'a [f64],
+    path: &Path,
+) -> Result<ArrayView2<'a, f64>, OutputError> {
+    ArrayView2::from_shape(grid.shape(), values).map_err(|_| {
+        OutputError::invalid(
+            path,
+            format!(
+                "a field of {} values, expected ny * nx = {}",
+                values.len(),
+                grid.cells()
+            ),
+        )
+    })
 }

@@ -11,6 +11,7 @@ use crate::ops::sources::Release;
 use crate::scenario::Scenario;
 use crate::step::Simulation;
 use crate::RunError;
+use ndarray::ArrayView2;
 
 /// The numerical choices as run.
 #[derive(Debug, Clone, PartialEq, serde::Serialize)]
@@ -126,8 +127,8 @@ impl PlumeTrack {
         }
     }
 
-    /// Records the frame at time `t` (`field` and `wet` `nx * ny`, row 0 south).
-    pub fn observe(&mut self, grid: &Grid, t: f64, field: &[f64], wet: &[bool]) {
+    /// Records the frame at time `t` (`field` and `wet` of shape (ny, nx), row 0 south).
+    pub fn observe(&mut self, grid: &Grid, t: f64, field: ArrayView2<f64>, wet: ArrayView2<bool>) {
         if self.refused.is_some() {
             return;
         }

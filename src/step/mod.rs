@@ -19,6 +19,7 @@ use crate::ops::limiter::Limiter;
 use crate::ops::sources::decay_factor;
 use explicit::Explicit;
 use implicit::{Implicit, ImplicitFailure};
+use ndarray::{Array2, ArrayView2, CowArray, Ix2};
 pub use snapshot::{ImplicitCounters, SimState};
 use std::ops::ControlFlow;
 
@@ -439,36 +440,35 @@ pub struct Simulation {
 }
 
 impl Simulation {
-    /// Starts a run at t = 0 from the padded `initial` field (land cells are zeroed);
-    /// instantaneous releases at t <= 0 are applied at once and booked as added mass.
-    pub fn new(model: Model, scheme: Scheme, initial: Vec<f64>) -> Result<Self, ModelError> {
-        if initial.len() != model.grid.padded_len() {
-            return Err(invalid(
-                "initial field length",
-                initial.len(),
-                format!("{} (padded grid)", model.grid.padded_len()),
-            ));
-        }
+    /// Starts a run at t = 0 from the `initial` interior field (shape (ny, nx), (y, x) order,
+    /// row 0 south; an owned array or a view; land cells are zeroed); instantaneous releases
+    /// at t <= 0 are applied at once and booked as added mass. Another shape or a non-finite
+    /// water value is a [`ModelError`].
+    pub fn new<'a>(
+        model: Model,
+        scheme: Scheme,
+        initial: impl Into<CowArray<'a, f64, Ix2>>,
+    ) -> Result<Self, ModelError> {
+        let initial = initial.into();
+        // The state swaps buffers with the stepper every step: `padded_from` gives it the
+        // same huge-page backing as the stepper's own.
+        let padded = model.grid.padded_from("initial field", initial.view())?;
+        Self::from_padded(model, scheme, padded)
+    }
+
+    /// Starts a run from a padded field of this grid (from `Grid::padded_from`), as `new`.
+    fn from_padded(model: Model, scheme: Scheme, mut initial: Vec<f64>) -> Result<Self, ModelError> {
         let dt_max = max_step(&model, &scheme)?;
-        // The state swaps buffers with the stepper every step: give it the same huge-page
-        // backing as the stepper's own.
-        let mut initial = {
-            let mut c = crate::field::huge_filled(initial.len(), 0.0);
-            c.copy_from_slice(&initial);
-            c
-        };
-        for j in 0..model.grid.ny {
-            for i in 0..model.grid.nx {
-                let p = model.grid.idx(i as isize, j as isize);
-                if !model.mask.is_wet(i, j) {
-                    initial[p] = 0.0;
-                } else if !initial[p].is_finite() {
-                    return Err(invalid(
-                        format!("initial value at cell ({i}, {j})"),
-                        initial[p],
-                        "a finite number",
-                    ));
-                }
+        let mut c = model.grid.interior_view_mut(&mut initial);
+        for ((j, i), v) in c.indexed_iter_mut() {
+            if !model.mask.is_wet(i, j) {
+                *v = 0.0;
+            } else if !v.is_finite() {
+                return Err(invalid(
+                    format!("initial value at cell ({i}, {j})"),
+                    *v,
+                    "a finite number",
+                ));
             }
         }
         let mass0 = model.mass(&initial, 0.0);
@@ -741,9 +741,15 @@ impl Simulation {
         self.budget.row(s.t, s.step, s.last_dt, mass, lo, hi, s.last_courant)
     }
 
-    /// The field's interior as `nx * ny` row-major values (row 0 south).
-    pub fn field(&self) -> Vec<f64> {
-        self.model.grid.interior(&self.state.c)
+    /// The field's interior as a zero-copy view of shape (ny, nx), (y, x) order, row 0 south
+    /// (`view[[j, i]]` is cell (i, j), as in `fields.nc`).
+    pub fn field_view(&self) -> ArrayView2<'_, f64> {
+        self.model.grid.interior_view(&self.state.c)
+    }
+
+    /// A copy of the field's interior, shape (ny, nx), as [`Self::field_view`].
+    pub fn field(&self) -> Array2<f64> {
+        self.field_view().to_owned()
     }
 
     /// Concentration of the cell containing (x, y), if inside the grid.

@@ -26,6 +26,7 @@ use crate::output::write_atomic;
 use crate::output::ColourScale;
 use crate::scenario::Scenario;
 use crate::step::TimeScheme;
+use ndarray::{Array2, ArrayView2};
 use rayon::prelude::*;
 use std::path::{Path, PathBuf};
 
@@ -145,9 +146,9 @@ pub struct CompareReport {
     /// Runs marched at the same time.
     pub concurrent: usize,
     grid: Grid,
-    wet: Vec<bool>,
-    reference_field: Vec<f64>,
-    fields: Vec<Vec<f64>>,
+    wet: Array2<bool>,
+    reference_field: Array2<f64>,
+    fields: Vec<Array2<f64>>,
     section: Option<Section>,
     units: String,
     colour: ColourScale,
@@ -167,9 +168,15 @@ impl CompareReport {
         &self.grid
     }
 
-    /// The reference field, `nx * ny`.
-    pub fn reference_field(&self) -> &[f64] {
-        &self.reference_field
+    /// The reference field, shape (ny, nx), (y, x) order, row 0 south.
+    pub fn reference_field(&self) -> ArrayView2<'_, f64> {
+        self.reference_field.view()
+    }
+
+    /// The final field of row `k` (in the order of [`Self::rows`]), as
+    /// [`Self::reference_field`].
+    pub fn field(&self, k: usize) -> Option<ArrayView2<'_, f64>> {
+        self.fields.get(k).map(|f| f.view())
     }
 }
 
@@ -267,7 +274,7 @@ pub fn compare(
                 description: e.description.clone(),
                 source: Some(e.source),
             },
-            e.field(&grid, &wet, scn.run.end),
+            e.field(&grid, wet.view(), scn.run.end),
         ),
         None => {
             let r = opts.reference_refine;
@@ -284,7 +291,7 @@ pub fn compare(
                     ),
                     source: None,
                 },
-                restrict(&rec.field, &rec.wet, grid.nx, grid.ny, r),
+                restrict(rec.field.view(), rec.wet.view(), r),
             )
         }
     };
@@ -338,7 +345,7 @@ pub fn compare(
                 label: label.clone(),
                 limiter: *l,
                 time: *t,
-                norms: error_norms(&rec.field, &reference_field, Some(&wet)),
+                norms: error_norms(rec.field.view(), reference_field.view(), Some(wet.view())),
                 mass_error: rec.mass_error,
                 k_numerical,
                 k_numerical_reason: reason,
@@ -367,28 +374,25 @@ pub fn compare(
 pub fn chosen_section(report: &CompareReport) -> Section {
     report.section.unwrap_or_else(|| {
         let g = &report.grid;
-        let k = report
+        let (j, i) = report
             .reference_field
-            .iter()
-            .enumerate()
+            .indexed_iter()
             .max_by(|a, b| a.1.total_cmp(b.1))
-            .map_or(0, |(k, _)| k);
-        Section::AlongX {
-            y: g.centre(k % g.nx, k / g.nx).1,
-        }
+            .map_or((0, 0), |(k, _)| k);
+        Section::AlongX { y: g.centre(i, j).1 }
     })
 }
 
 /// Values of `field` along `section` (the row or column of cells it crosses) with positions.
-fn cut(grid: &Grid, field: &[f64], section: Section) -> Option<(Vec<f64>, Vec<f64>)> {
+fn cut(grid: &Grid, field: &Array2<f64>, section: Section) -> Option<(Vec<f64>, Vec<f64>)> {
     match section {
         Section::AlongX { y } => {
             let (_, j) = grid.cell_at(grid.x0, y)?;
-            Some((grid.xs(), field[j * grid.nx..(j + 1) * grid.nx].to_vec()))
+            Some((grid.xs(), field.row(j).to_vec()))
         }
         Section::AlongY { x } => {
             let (i, _) = grid.cell_at(x, grid.y0)?;
-            Some((grid.ys(), (0..grid.ny).map(|j| field[j * grid.nx + i]).collect()))
+            Some((grid.ys(), field.column(i).to_vec()))
         }
     }
 }
@@ -399,12 +403,12 @@ pub fn write_compare(report: &CompareReport, dir: &Path) -> Result<Vec<PathBuf>,
     std::fs::create_dir_all(dir).map_err(|e| crate::output::OutputError::io(dir, e))?;
     let g = &report.grid;
     let mut tiles = vec![Tile {
-        values: &report.reference_field,
+        values: report.reference_field.view(),
         lines: vec![report.reference.label.clone(), "(reference)".into()],
     }];
     for (r, f) in report.rows.iter().zip(&report.fields) {
         tiles.push(Tile {
-            values: f,
+            values: f.view(),
             lines: vec![
                 r.label.clone(),
                 format!("L1 {:.3}  peak {:.3}", r.norms.l1, r.norms.peak_ratio),
@@ -438,7 +442,7 @@ pub fn write_compare(report: &CompareReport, dir: &Path) -> Result<Vec<PathBuf>,
     let panel = plot::render_panel(
         g.nx,
         g.ny,
-        Some(&report.wet),
+        Some(report.wet.view()),
         &tiles,
         (lo, hi),
         report.colour,

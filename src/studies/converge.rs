@@ -160,8 +160,8 @@ pub fn converge(
         on_level(k, g.nx, g.ny);
         let rec = run_scenario(&s, &format!("level {k} ({} x {})", g.nx, g.ny))?;
         let l1 = exact.as_ref().map(|e| {
-            let r = e.field(&rec.grid, &rec.wet, s.run.end);
-            error_norms(&rec.field, &r, Some(&rec.wet)).l1
+            let r = e.field(&rec.grid, rec.wet.view(), s.run.end);
+            error_norms(rec.field.view(), r.view(), Some(rec.wet.view())).l1
         });
         per_level.push(quantities_of(&rec, l1, &s));
         levels.push(Level {

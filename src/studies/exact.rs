@@ -21,6 +21,7 @@ use crate::initial::Initial;
 use crate::ops::boundary::{Side, SideKind};
 use crate::ops::sources::Release;
 use crate::scenario::Scenario;
+use ndarray::{Array2, ArrayView2};
 use std::f64::consts::PI;
 
 /// Fraction of the peak the exact puff may reach along an open side and still count as far.
@@ -89,20 +90,19 @@ impl Puff {
 }
 
 impl ExactSolution {
-    /// The exact field at time `t` at the cell centres of `grid`, `nx * ny` row-major (0 on
-    /// land).
-    pub fn field(&self, grid: &Grid, wet: &[bool], t: f64) -> Vec<f64> {
-        let mut out = Vec::with_capacity(grid.cells());
-        for (j, y) in grid.ys().into_iter().enumerate() {
-            for (i, x) in grid.xs().into_iter().enumerate() {
-                let v = match &self.kind {
-                    Kind::Initial(init) => init.value_at(x, y),
-                    Kind::Puff(p) => p.at(x, y, t),
-                };
-                out.push(if wet[j * grid.nx + i] { v } else { 0.0 });
+    /// The exact field at time `t` at the cell centres of `grid`, shape (ny, nx), (y, x)
+    /// order, row 0 south (0 where `wet` is false).
+    pub fn field(&self, grid: &Grid, wet: ArrayView2<bool>, t: f64) -> Array2<f64> {
+        Array2::from_shape_fn(grid.shape(), |(j, i)| {
+            if !wet[[j, i]] {
+                return 0.0;
             }
-        }
-        out
+            let (x, y) = grid.centre(i, j);
+            match &self.kind {
+                Kind::Initial(init) => init.value_at(x, y),
+                Kind::Puff(p) => p.at(x, y, t),
+            }
+        })
     }
 }
 
@@ -249,9 +249,9 @@ mod tests {
         let puff = load("gaussian-puff", &[]);
         let e = exact_solution(&puff).expect("puff is exact");
         let g = puff.model.grid;
-        let wet = vec![true; g.cells()];
+        let wet = Array2::from_elem(g.shape(), true);
         // The exact field holds the released mass (per unit depth) times the decay factor.
-        let f = e.field(&g, &wet, 3600.0);
+        let f = e.field(&g, wet.view(), 3600.0);
         let total: f64 = f.iter().sum::<f64>() * g.cell_area() * puff.model.depth.uniform().unwrap_or(1.0);
         let expect = 1.0e13 * (-puff.model.decay_rate * 3600.0).exp();
         assert!((total / expect - 1.0).abs() < 1e-3, "{total:e} vs {expect:e}");

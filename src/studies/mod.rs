@@ -24,6 +24,7 @@ use crate::output::OutputError;
 use crate::scenario::Scenario;
 use crate::step::{Simulation, TimeScheme};
 use crate::RunError;
+use ndarray::{Array2, ArrayView2, Zip};
 use std::ops::ControlFlow;
 use std::time::Instant;
 
@@ -71,10 +72,10 @@ pub struct RunRecord {
     pub label: String,
     /// The grid it ran on.
     pub grid: Grid,
-    /// Water flags, `nx * ny`, row-major.
-    pub wet: Vec<bool>,
-    /// The final field, `nx * ny`, row-major.
-    pub field: Vec<f64>,
+    /// Water flags, shape (ny, nx), (y, x) order, row 0 south.
+    pub wet: Array2<bool>,
+    /// The final field, shape (ny, nx), (y, x) order, row 0 south.
+    pub field: Array2<f64>,
     /// Signed relative budget residual at the end (DESIGN §3).
     pub mass_error: f64,
     /// Mass in the domain at the end.
@@ -137,14 +138,14 @@ pub fn with_scheme(scn: &Scenario, limiter: Limiter, time: TimeScheme) -> Scenar
     s
 }
 
-/// Bilinear interpolation of cell-centre values (`padded` layout) at (x, y); next to land or
-/// within half a cell of a side it takes the containing cell's value.
-pub fn sample(grid: &Grid, mask: &crate::grid::Mask, padded: &[f64], x: f64, y: f64) -> Option<f64> {
+/// Bilinear interpolation of cell-centre values (`field`, shape (ny, nx), (y, x) order) at
+/// (x, y); next to land or within half a cell of a side it takes the containing cell's value.
+pub fn sample(grid: &Grid, mask: &crate::grid::Mask, field: ArrayView2<f64>, x: f64, y: f64) -> Option<f64> {
     let (ci, cj) = grid.cell_at(x, y)?;
     let fx = (x - grid.x0) / grid.dx - 0.5;
     let fy = (y - grid.y0) / grid.dy - 0.5;
     let (i0, j0) = (fx.floor(), fy.floor());
-    let own = padded[grid.idx(ci as isize, cj as isize)];
+    let own = field[[cj, ci]];
     if i0 < 0.0 || j0 < 0.0 || i0 as usize + 1 >= grid.nx || j0 as usize + 1 >= grid.ny {
         return Some(own);
     }
@@ -153,7 +154,7 @@ pub fn sample(grid: &Grid, mask: &crate::grid::Mask, padded: &[f64], x: f64, y: 
         return Some(own);
     }
     let (ax, ay) = (fx - i0 as f64, fy - j0 as f64);
-    let v = |i: usize, j: usize| padded[grid.idx(i as isize, j as isize)];
+    let v = |i: usize, j: usize| field[[j, i]];
     Some(
         (1.0 - ay) * ((1.0 - ax) * v(i0, j0) + ax * v(i0 + 1, j0))
             + ay * ((1.0 - ax) * v(i0, j0 + 1) + ax * v(i0 + 1, j0 + 1)),
@@ -167,8 +168,8 @@ pub fn run_scenario(scn: &Scenario, label: &str) -> Result<RunRecord, StudyError
     let c0 = model.field_from(|x, y| scn.initial.value_at(x, y));
     let mut sim = Simulation::new(model, scn.scheme, c0).map_err(bad)?;
     let grid = sim.model.grid;
-    let wet = sim.model.mask.as_slice().to_vec();
-    let m0 = moments(&grid, &sim.field(), Some(&wet));
+    let wet = sim.model.mask.view().to_owned();
+    let m0 = moments(&grid, sim.field_view(), Some(wet.view()));
     let mut traces: Vec<ReceptorTrace> = scn
         .receptors
         .iter()
@@ -183,7 +184,7 @@ pub fn run_scenario(scn: &Scenario, label: &str) -> Result<RunRecord, StudyError
     let observe = |sim: &Simulation, traces: &mut [ReceptorTrace], last: &mut Vec<(f64, f64)>| {
         let first = last.is_empty();
         for (k, (r, tr)) in scn.receptors.iter().zip(traces.iter_mut()).enumerate() {
-            let c = sample(&grid, &sim.model.mask, &sim.state.c, r.at.0, r.at.1).unwrap_or(f64::NAN);
+            let c = sample(&grid, &sim.model.mask, sim.field_view(), r.at.0, r.at.1).unwrap_or(f64::NAN);
             let t = sim.state.t;
             if !first && c > tr.peak {
                 tr.peak = c;
@@ -223,7 +224,7 @@ pub fn run_scenario(scn: &Scenario, label: &str) -> Result<RunRecord, StudyError
     let seconds = started.elapsed().as_secs_f64();
     let row = sim.budget_row();
     let field = sim.field();
-    let m1 = moments(&grid, &field, Some(&wet));
+    let m1 = moments(&grid, field.view(), Some(wet.view()));
     Ok(RunRecord {
         label: label.to_string(),
         grid,
@@ -239,27 +240,23 @@ pub fn run_scenario(scn: &Scenario, label: &str) -> Result<RunRecord, StudyError
     })
 }
 
-/// Averages a field on a grid refined `r` times (`nx r` by `ny r` cells) onto the `nx` by `ny`
-/// grid, over the water cells of each block (a block without water gives 0).
-pub fn restrict(fine: &[f64], fine_wet: &[bool], nx: usize, ny: usize, r: usize) -> Vec<f64> {
-    let fnx = nx * r;
-    let mut out = vec![0.0; nx * ny];
-    for j in 0..ny {
-        for i in 0..nx {
+/// Averages a field on a grid refined `r` times (shape (ny r, nx r)) onto the (ny, nx) grid,
+/// over the water cells of each r by r block (a block without water gives 0).
+pub fn restrict(fine: ArrayView2<f64>, fine_wet: ArrayView2<bool>, r: usize) -> Array2<f64> {
+    Zip::from(fine.exact_chunks((r, r)))
+        .and(fine_wet.exact_chunks((r, r)))
+        .map_collect(|c, w| {
             let (mut s, mut n) = (0.0, 0usize);
-            for b in 0..r {
-                for a in 0..r {
-                    let k = (j * r + b) * fnx + i * r + a;
-                    if fine_wet[k] {
-                        s += fine[k];
-                        n += 1;
-                    }
-                }
+            for (&c, _) in c.iter().zip(w).filter(|(_, &w)| w) {
+                s += c;
+                n += 1;
             }
-            out[j * nx + i] = if n > 0 { s / n as f64 } else { 0.0 };
-        }
-    }
-    out
+            if n > 0 {
+                s / n as f64
+            } else {
+                0.0
+            }
+        })
 }
 
 /// Bytes a run of `cells` cells is expected to hold (fields, face velocities, scratch; the
@@ -302,11 +299,11 @@ mod tests {
 
     #[test]
     fn restriction_averages_water_cells() {
-        let fine = [1.0, 2.0, 5.0, 6.0, 3.0, 4.0, 7.0, 8.0];
-        let wet = [true; 8];
-        assert_eq!(restrict(&fine, &wet, 2, 1, 2), vec![2.5, 6.5]);
-        let wet = [true, false, true, true, true, false, true, true];
-        assert_eq!(restrict(&fine, &wet, 2, 1, 2)[0], 2.0);
+        let fine = ndarray::array![[1.0, 2.0, 5.0, 6.0], [3.0, 4.0, 7.0, 8.0]];
+        let wet = Array2::from_elem((2, 4), true);
+        assert_eq!(restrict(fine.view(), wet.view(), 2), ndarray::array![[2.5, 6.5]]);
+        let wet = ndarray::array![[true, false, true, true], [true, false, true, true]];
+        assert_eq!(restrict(fine.view(), wet.view(), 2)[[0, 0]], 2.0);
     }
 
     #[test]
@@ -314,8 +311,8 @@ mod tests {
         let g = Grid::new(10, 8, 1.0, 2.0, 0.0, 0.0).unwrap();
         let mask = crate::grid::Mask::all_water(&g);
         let c = crate::field::fill_from(&g, &mask, |x, y| 2.0 * x - y);
-        let v = sample(&g, &mask, &c, 4.3, 7.1).unwrap();
+        let v = sample(&g, &mask, g.interior_view(&c), 4.3, 7.1).unwrap();
         assert!((v - (8.6 - 7.1)).abs() < 1e-12, "{v}");
-        assert!(sample(&g, &mask, &c, -1.0, 1.0).is_none());
+        assert!(sample(&g, &mask, g.interior_view(&c), -1.0, 1.0).is_none());
     }
 }

@@ -56,18 +56,15 @@ pub fn run_to(s: &mut Simulation, t: f64, mut each: impl FnMut(&Simulation) + Se
 /// sum |c - e| / sum |e| over water cells.
 pub fn l1_error(s: &Simulation, exact: impl Fn(f64, f64) -> f64) -> f64 {
     let g = &s.model.grid;
-    let f = s.field();
     let (mut num, mut den) = (0.0, 0.0);
-    for j in 0..g.ny {
-        for i in 0..g.nx {
-            if !s.model.mask.is_wet(i, j) {
-                continue;
-            }
-            let (x, y) = g.centre(i, j);
-            let e = exact(x, y);
-            num += (f[j * g.nx + i] - e).abs();
-            den += e.abs();
+    for ((j, i), &c) in s.field_view().indexed_iter() {
+        if !s.model.mask.is_wet(i, j) {
+            continue;
         }
+        let (x, y) = g.centre(i, j);
+        let e = exact(x, y);
+        num += (c - e).abs();
+        den += e.abs();
     }
     num / den
 }
