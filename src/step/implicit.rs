@@ -166,8 +166,6 @@ impl Implicit {
         let s = g.stride();
         let (periodic_x, periodic_y) = (b.periodic_x(), b.periodic_y());
         let (cx, cy) = (td / g.dx, td / g.dy);
-        // theta dt K / dx^2 (and / dy^2) per metre of face depth.
-        let (gx, gy) = (td * dx_cond / g.dx, td * dy_cond / g.dy);
         // Every cell's row depends on the step's inputs only: rows are assembled in parallel.
         let rows = d
             .par_chunks_mut(nx)
@@ -219,7 +217,12 @@ impl Implicit {
                             (j > 0 || periodic_y) && wet(p - s),
                             (j + 1 < ny || periodic_y) && wet(p + s),
                         ];
-                        let cond = [gx * hw, gx * he, gy * hs, gy * hn];
+                        let cond = [
+                            td * dx_cond * hw / g.dx,
+                            td * dx_cond * he / g.dx,
+                            td * dy_cond * hs / g.dy,
+                            td * dy_cond * hn / g.dy,
+                        ];
                         let offs = [&mut aw[k], &mut ae[k], &mut as_[k], &mut an[k]];
                         for ((open, c), off) in inside.into_iter().zip(cond).zip(offs) {
                             if open {
