@@ -29,7 +29,14 @@ pub struct BenchArgs {
     /// number 10, zero-flux sides, relative residual 1e-10, previous step as initial guess).
     #[arg(long)]
     implicit: bool,
-    /// Timed steps per size for `--implicit` (the median is reported).
+    /// Instead, time backward-Euler steps on a harbour with a tide against the same harbour
+    /// with the tide removed (steady stream), interleaved in rounds, for upwind and van Leer
+    /// (or `--schemes`) at `--sizes` cells across (default 400; the grid is N by N/2), and
+    /// print the ratio tidal / steady per step.
+    #[arg(long)]
+    implicit_tide: bool,
+    /// Timed steps per size for `--implicit` and per variant for `--implicit-tide` (the median
+    /// is reported).
     #[arg(long, default_value_t = 16)]
     steps: usize,
     /// Solvers for `--implicit`: `transform` (what `auto` picks on this problem) and
@@ -60,12 +67,14 @@ pub fn main(a: BenchArgs) -> Result<(), Failure> {
         reference,
         threads,
         implicit,
+        implicit_tide,
         steps,
         solvers,
         outputs,
         scenario,
         peer,
     } = a;
+    let all_schemes = schemes.iter().any(|n| n == "all");
     let schemes = parse_schemes(&schemes)?;
     if let Some(t) = threads {
         rayon::ThreadPoolBuilder::new()
@@ -76,6 +85,14 @@ pub fn main(a: BenchArgs) -> Result<(), Failure> {
     if let Some(dir) = peer {
         let sizes = sizes.unwrap_or_else(|| vec![256, 512, 1024, 2048]);
         return super::bench_peer::main(&dir, &sizes, reps.unwrap_or(5), seconds);
+    }
+    if implicit_tide {
+        let limiters = if all_schemes {
+            vec![Limiter::Upwind, Limiter::VanLeer]
+        } else {
+            schemes
+        };
+        return implicit_tide_bench(&sizes.unwrap_or_else(|| vec![400]), steps, &limiters);
     }
     let sizes = sizes.unwrap_or_else(|| vec![512, 1024, 2048]);
     let reps = reps.unwrap_or(7);
@@ -197,6 +214,43 @@ fn implicit_bench(sizes: &[usize], steps: usize, solvers: &[String]) -> Result<(
                     median_step_ratio(p, r)
                 );
             }
+        }
+    }
+    Ok(())
+}
+
+/// Tidal against steady implicit steps on the harbour: per limiter and size the median
+/// milliseconds per step of each, their median iterations, and the ratio tidal / steady as a
+/// ratio of medians and as the median of per-step ratios (steps of the same round).
+fn implicit_tide_bench(sizes: &[usize], steps: usize, limiters: &[Limiter]) -> Result<(), Failure> {
+    use tinct::step::tide_bench::tide_vs_steady;
+    if let Some(n) = sizes.iter().find(|&&n| n < 40) {
+        return Err(bad_input(format!("--sizes: {n} is too small (at least 40)")));
+    }
+    println!(
+        "implicit (backward Euler) steps, harbour with a tide vs the same harbour with a steady stream; {} thread(s); variants interleaved in rounds",
+        rayon::current_num_threads()
+    );
+    println!(
+        "{:<10} {:>10} {:>8} {:>12} {:>12} {:>9} {:>9} {:>14} {:>14}",
+        "scheme", "grid", "dt s", "tidal ms", "steady ms", "it tidal", "it steady", "ratio medians", "median ratio"
+    );
+    for &n in sizes {
+        for &lim in limiters {
+            let r = tide_vs_steady(n, lim, steps.max(1)).map_err(failed)?;
+            let (it_t, it_s) = r.median_iterations();
+            println!(
+                "{:<10} {:>10} {:>8.1} {:>12.2} {:>12.2} {:>9.1} {:>9.1} {:>14.2} {:>14.2}",
+                lim.name(),
+                format!("{}x{}", r.nx, r.nx / 2),
+                r.dt,
+                1e3 * r.tidal_median(),
+                1e3 * r.steady_median(),
+                it_t,
+                it_s,
+                r.tidal_median() / r.steady_median(),
+                r.median_ratio()
+            );
         }
     }
     Ok(())

@@ -159,6 +159,9 @@ impl Compact {
             if cy == 0.0 {
                 cy = a.as_[k].max(a.an[k]);
             }
+            if cx != 0.0 && cy != 0.0 {
+                break;
+            }
         }
         let (gx, gy) = g.unwrap_or((2.0 * cx, 2.0 * cy));
         let k = Consts { m, cx, cy, gx, gy };

@@ -13,6 +13,10 @@ use super::compact::{self, Coefficients, Compact};
 use super::{check_len, SolveError};
 use crate::grid::{Grid, Mask};
 use crate::ops::boundary::{Boundaries, SideKind};
+use rayon::prelude::*;
+
+/// Fewest rows per parallel piece of assembly and validation.
+const ROWS_MIN: usize = 8;
 
 /// How the operator treats one side of the rectangle.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -277,54 +281,65 @@ impl Stencil5 {
         }
         let cx = tkx / (grid.dx * grid.dx);
         let cy = tky / (grid.dy * grid.dy);
-        for j in 0..ny {
-            for i in 0..nx {
-                let k = j * nx + i;
-                self.land[k] = !wet[k];
-                if !wet[k] {
-                    self.diag[k] = 1.0;
-                    self.aw[k] = 0.0;
-                    self.ae[k] = 0.0;
-                    self.as_[k] = 0.0;
-                    self.an[k] = 0.0;
-                    continue;
-                }
-                // A face is open if the neighbour (wrapped for periodic sides) is water.
-                let face = |inside: bool, nb: usize, side: SideCoupling, c: f64| -> (f64, f64) {
-                    if inside {
-                        (if wet[nb] { c } else { 0.0 }, 0.0)
-                    } else {
-                        match side {
-                            SideCoupling::Periodic => (if wet[nb] { c } else { 0.0 }, 0.0),
-                            SideCoupling::Closed => (0.0, 0.0),
-                            SideCoupling::Dirichlet => (0.0, 2.0 * c),
-                        }
+        // Each row is a function of the inputs alone: rows are filled in parallel.
+        let rows = self
+            .diag
+            .par_chunks_mut(nx)
+            .zip(self.aw.par_chunks_mut(nx))
+            .zip(self.ae.par_chunks_mut(nx))
+            .zip(self.as_.par_chunks_mut(nx))
+            .zip(self.an.par_chunks_mut(nx))
+            .zip(self.land.par_chunks_mut(nx));
+        rows.with_min_len(ROWS_MIN)
+            .enumerate()
+            .for_each(|(j, (((((dr, awr), aer), asr), anr), landr))| {
+                for i in 0..nx {
+                    let k = j * nx + i;
+                    landr[i] = !wet[k];
+                    if !wet[k] {
+                        dr[i] = 1.0;
+                        awr[i] = 0.0;
+                        aer[i] = 0.0;
+                        asr[i] = 0.0;
+                        anr[i] = 0.0;
+                        continue;
                     }
-                };
-                let west = j * nx + if i > 0 { i - 1 } else { nx - 1 };
-                let east = j * nx + if i + 1 < nx { i + 1 } else { 0 };
-                let south = if j > 0 { j - 1 } else { ny - 1 } * nx + i;
-                let north = if j + 1 < ny { j + 1 } else { 0 } * nx + i;
-                let (w, dw) = face(i > 0, west, sides.west, cx);
-                let (e, de) = face(i + 1 < nx, east, sides.east, cx);
-                let (s, ds) = face(j > 0, south, sides.south, cy);
-                let (nn, dn) = face(j + 1 < ny, north, sides.north, cy);
-                let mut d = 1.0 + w + e + s + nn + dw + de + ds + dn;
-                let (mut w, mut e, mut s, mut nn) = (w, e, s, nn);
-                if let Some(x) = extra {
-                    d += x.diag[k];
-                    w += x.aw[k];
-                    e += x.ae[k];
-                    s += x.as_[k];
-                    nn += x.an[k];
+                    // A face is open if the neighbour (wrapped for periodic sides) is water.
+                    let face = |inside: bool, nb: usize, side: SideCoupling, c: f64| -> (f64, f64) {
+                        if inside {
+                            (if wet[nb] { c } else { 0.0 }, 0.0)
+                        } else {
+                            match side {
+                                SideCoupling::Periodic => (if wet[nb] { c } else { 0.0 }, 0.0),
+                                SideCoupling::Closed => (0.0, 0.0),
+                                SideCoupling::Dirichlet => (0.0, 2.0 * c),
+                            }
+                        }
+                    };
+                    let west = j * nx + if i > 0 { i - 1 } else { nx - 1 };
+                    let east = j * nx + if i + 1 < nx { i + 1 } else { 0 };
+                    let south = if j > 0 { j - 1 } else { ny - 1 } * nx + i;
+                    let north = if j + 1 < ny { j + 1 } else { 0 } * nx + i;
+                    let (w, dw) = face(i > 0, west, sides.west, cx);
+                    let (e, de) = face(i + 1 < nx, east, sides.east, cx);
+                    let (s, ds) = face(j > 0, south, sides.south, cy);
+                    let (nn, dn) = face(j + 1 < ny, north, sides.north, cy);
+                    let mut d = 1.0 + w + e + s + nn + dw + de + ds + dn;
+                    let (mut w, mut e, mut s, mut nn) = (w, e, s, nn);
+                    if let Some(x) = extra {
+                        d += x.diag[k];
+                        w += x.aw[k];
+                        e += x.ae[k];
+                        s += x.as_[k];
+                        nn += x.an[k];
+                    }
+                    dr[i] = d;
+                    awr[i] = w;
+                    aer[i] = e;
+                    asr[i] = s;
+                    anr[i] = nn;
                 }
-                self.diag[k] = d;
-                self.aw[k] = w;
-                self.ae[k] = e;
-                self.as_[k] = s;
-                self.an[k] = nn;
-            }
-        }
+            });
         self.validate()
     }
 
@@ -350,74 +365,91 @@ impl Stencil5 {
 
     /// Checks the rules of the module doc and records whether the operator is symmetric.
     fn validate(&mut self) -> Result<(), SolveError> {
-        let (nx, ny) = (self.nx, self.ny);
+        let ny = self.ny;
+        // Rows are checked in parallel; the first failing row (south first) is reported, as
+        // a sequential check would.
+        let this = &*self;
+        let rows: Vec<Result<bool, SolveError>> = (0..ny)
+            .into_par_iter()
+            .with_min_len(ROWS_MIN)
+            .map(|j| this.validate_row(j))
+            .collect();
         let mut symmetric = true;
-        for j in 0..ny {
-            for i in 0..nx {
-                let k = j * nx + i;
-                let (d, w, e, s, n) = (self.diag[k], self.aw[k], self.ae[k], self.as_[k], self.an[k]);
-                let at = || format!("cell (i = {i}, j = {j})");
-                if !(d.is_finite() && w.is_finite() && e.is_finite() && s.is_finite() && n.is_finite()) {
-                    return Err(SolveError::InvalidOperator(format!(
-                        "non-finite coefficient at {}",
-                        at()
-                    )));
-                }
-                if self.land[k] {
-                    if d != 1.0 || w != 0.0 || e != 0.0 || s != 0.0 || n != 0.0 {
-                        return Err(SolveError::InvalidOperator(format!(
-                            "land {} must be an identity row (diag 1, no couplings)",
-                            at()
-                        )));
-                    }
-                    continue;
-                }
-                if !(d > 0.0) {
-                    return Err(SolveError::InvalidOperator(format!(
-                        "water {} has diagonal {d}, must be > 0",
-                        at()
-                    )));
-                }
-                let closed = |c: f64, edge: bool, periodic: bool, what: &str| {
-                    if c != 0.0 && edge && !periodic {
-                        return Err(SolveError::InvalidOperator(format!(
-                            "{} couples {what} across a non-periodic side ({c})",
-                            at()
-                        )));
-                    }
-                    Ok(())
-                };
-                closed(w, i == 0, self.periodic_x, "west")?;
-                closed(e, i + 1 == nx, self.periodic_x, "east")?;
-                closed(s, j == 0, self.periodic_y, "south")?;
-                closed(n, j + 1 == ny, self.periodic_y, "north")?;
-                let west = j * nx + if i > 0 { i - 1 } else { nx - 1 };
-                let east = j * nx + if i + 1 < nx { i + 1 } else { 0 };
-                let south = if j > 0 { j - 1 } else { ny - 1 } * nx + i;
-                let north = if j + 1 < ny { j + 1 } else { 0 } * nx + i;
-                for (c, nb, what) in [
-                    (w, west, "west"),
-                    (e, east, "east"),
-                    (s, south, "south"),
-                    (n, north, "north"),
-                ] {
-                    if c != 0.0 && self.land[nb] {
-                        return Err(SolveError::InvalidOperator(format!(
-                            "{} couples to a land cell on its {what} ({c})",
-                            at()
-                        )));
-                    }
-                }
-                if w != self.ae[west] || s != self.an[south] {
-                    symmetric = false;
-                }
-            }
+        for r in rows {
+            symmetric &= r?;
         }
         self.symmetric = symmetric;
         // Exact (bit-for-bit) matrix-free form when the coefficients allow it.
         self.compact = None;
         self.compact = Compact::detect(&self.coefficients(), 1.0, None, 0.0);
         Ok(())
+    }
+
+    /// Checks row `j` (see [`Self::validate`]); returns whether it is symmetric with its west
+    /// and south neighbours.
+    fn validate_row(&self, j: usize) -> Result<bool, SolveError> {
+        let (nx, ny) = (self.nx, self.ny);
+        let mut symmetric = true;
+        for i in 0..nx {
+            let k = j * nx + i;
+            let (d, w, e, s, n) = (self.diag[k], self.aw[k], self.ae[k], self.as_[k], self.an[k]);
+            let at = || format!("cell (i = {i}, j = {j})");
+            if !(d.is_finite() && w.is_finite() && e.is_finite() && s.is_finite() && n.is_finite()) {
+                return Err(SolveError::InvalidOperator(format!(
+                    "non-finite coefficient at {}",
+                    at()
+                )));
+            }
+            if self.land[k] {
+                if d != 1.0 || w != 0.0 || e != 0.0 || s != 0.0 || n != 0.0 {
+                    return Err(SolveError::InvalidOperator(format!(
+                        "land {} must be an identity row (diag 1, no couplings)",
+                        at()
+                    )));
+                }
+                continue;
+            }
+            if !(d > 0.0) {
+                return Err(SolveError::InvalidOperator(format!(
+                    "water {} has diagonal {d}, must be > 0",
+                    at()
+                )));
+            }
+            let closed = |c: f64, edge: bool, periodic: bool, what: &str| {
+                if c != 0.0 && edge && !periodic {
+                    return Err(SolveError::InvalidOperator(format!(
+                        "{} couples {what} across a non-periodic side ({c})",
+                        at()
+                    )));
+                }
+                Ok(())
+            };
+            closed(w, i == 0, self.periodic_x, "west")?;
+            closed(e, i + 1 == nx, self.periodic_x, "east")?;
+            closed(s, j == 0, self.periodic_y, "south")?;
+            closed(n, j + 1 == ny, self.periodic_y, "north")?;
+            let west = j * nx + if i > 0 { i - 1 } else { nx - 1 };
+            let east = j * nx + if i + 1 < nx { i + 1 } else { 0 };
+            let south = if j > 0 { j - 1 } else { ny - 1 } * nx + i;
+            let north = if j + 1 < ny { j + 1 } else { 0 } * nx + i;
+            for (c, nb, what) in [
+                (w, west, "west"),
+                (e, east, "east"),
+                (s, south, "south"),
+                (n, north, "north"),
+            ] {
+                if c != 0.0 && self.land[nb] {
+                    return Err(SolveError::InvalidOperator(format!(
+                        "{} couples to a land cell on its {what} ({c})",
+                        at()
+                    )));
+                }
+            }
+            if w != self.ae[west] || s != self.an[south] {
+                symmetric = false;
+            }
+        }
+        Ok(symmetric)
     }
 
     /// Whether products and residuals run matrix-free (constant couplings, flags per cell),

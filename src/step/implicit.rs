@@ -22,6 +22,7 @@ use crate::model::Model;
 use crate::ops::boundary::{fill_ghosts, Side, SideKind};
 use crate::ops::limiter::Limiter;
 use crate::solve::{ExtraCoefs, Sides, SolveError, Solver, SolverParams, Stencil5};
+use rayon::prelude::*;
 
 /// Why an implicit step failed.
 #[derive(Debug, Clone)]
@@ -75,6 +76,9 @@ pub(crate) const STALL_LIMIT: f64 = 1e-3;
 /// Under-relaxation of the high-order term from the fourth correction on: the fixed point is
 /// unchanged, but cycling between limiter branches is damped.
 const RELAX: f64 = 0.5;
+
+/// Fewest rows per parallel piece of the matrix assembly.
+const ROWS_MIN: usize = 8;
 
 impl Implicit {
     /// Sets up the stepper for `scheme.time` (not explicit), sizing every buffer.
@@ -145,7 +149,6 @@ impl Implicit {
         let g = &m.grid;
         let (nx, ny) = (g.nx, g.ny);
         let [d, aw, ae, as_, an] = &mut self.extra;
-        self.bc.iter_mut().for_each(|v| *v = 0.0);
         let b = &m.boundaries;
         // Peclet-switched schemes carry their exact coefficient form in the matrix.
         let scheme = if self.time.implicit_convection() && self.limiter.is_peclet_switched() {
@@ -161,81 +164,90 @@ impl Implicit {
         };
         let depth = m.depth_field.as_ref();
         let s = g.stride();
-        for j in 0..ny {
-            for i in 0..nx {
-                let k = j * nx + i;
-                let p = g.idx(i as isize, j as isize);
-                let uw = fac * fu[p];
-                let ue = fac * fu[p + 1];
-                let vs = fac * fv[p];
-                let vn = fac * fv[p + s];
-                let (cx, cy) = (td / g.dx, td / g.dy);
-                // Face conductances K h_f / dx with a depth field (times theta dt / dx in
-                // the matrix), K / dx otherwise (the diffusion matrix adds those itself).
-                let hf = |a: &[f64], q: usize| depth.map_or(1.0, |_| a[q] + eta1);
-                let face = |c: f64, d: f64| Face { c, d, scheme };
-                let (hw, he, hs, hn) = match depth {
-                    Some(d) => (hf(&d.fx, p), hf(&d.fx, p + 1), hf(&d.fy, p), hf(&d.fy, p + s)),
-                    None => (1.0, 1.0, 1.0, 1.0),
-                };
-                let mut diag = 0.0;
-                let mut bc = 0.0;
-                // West face: flux into the cell is uw * (upwind value).
-                face(cx, dx_cond * hw).terms(i == 0, b.west, uw, true, &mut diag, &mut aw[k], &mut bc);
-                face(cx, dx_cond * he).terms(i + 1 == nx, b.east, ue, false, &mut diag, &mut ae[k], &mut bc);
-                face(cy, dy_cond * hs).terms(j == 0, b.south, vs, true, &mut diag, &mut as_[k], &mut bc);
-                face(cy, dy_cond * hn).terms(j + 1 == ny, b.north, vn, false, &mut diag, &mut an[k], &mut bc);
-                if depth.is_some() && m.mask.is_wet(i, j) {
-                    // Central diffusion through open faces, and the new depth on the diagonal
-                    // (the operator adds 1 itself).
-                    let wet = |q: usize| m.wet[q] != 0;
-                    let periodic_x = m.boundaries.periodic_x();
-                    let periodic_y = m.boundaries.periodic_y();
-                    let inside = [
-                        (i > 0 || periodic_x) && wet(p - 1),
-                        (i + 1 < nx || periodic_x) && wet(p + 1),
-                        (j > 0 || periodic_y) && wet(p - s),
-                        (j + 1 < ny || periodic_y) && wet(p + s),
-                    ];
-                    let cond = [
-                        td * dx_cond * hw / g.dx,
-                        td * dx_cond * he / g.dx,
-                        td * dy_cond * hs / g.dy,
-                        td * dy_cond * hn / g.dy,
-                    ];
-                    let offs = [&mut aw[k], &mut ae[k], &mut as_[k], &mut an[k]];
-                    for ((open, c), off) in inside.into_iter().zip(cond).zip(offs) {
-                        if open {
-                            diag += c;
-                            *off += c;
-                        }
+        let (periodic_x, periodic_y) = (b.periodic_x(), b.periodic_y());
+        let (cx, cy) = (td / g.dx, td / g.dy);
+        // Every cell's row depends on the step's inputs only: rows are assembled in parallel.
+        let rows = d
+            .par_chunks_mut(nx)
+            .zip(aw.par_chunks_mut(nx))
+            .zip(ae.par_chunks_mut(nx))
+            .zip(as_.par_chunks_mut(nx))
+            .zip(an.par_chunks_mut(nx))
+            .zip(self.bc.par_chunks_mut(nx));
+        rows.with_min_len(ROWS_MIN)
+            .enumerate()
+            .for_each(|(j, (((((d, aw), ae), as_), an), bcr))| {
+                for i in 0..nx {
+                    let k = i;
+                    let p = g.idx(i as isize, j as isize);
+                    if m.wet[p] == 0 {
+                        d[k] = 0.0;
+                        bcr[k] = 0.0;
+                        aw[k] = 0.0;
+                        ae[k] = 0.0;
+                        as_[k] = 0.0;
+                        an[k] = 0.0;
+                        continue;
                     }
-                    let edges = [
-                        (i == 0, b.west, cond[0]),
-                        (i + 1 == nx, b.east, cond[1]),
-                        (j == 0, b.south, cond[2]),
-                        (j + 1 == ny, b.north, cond[3]),
-                    ];
-                    for (edge, kind, c) in edges {
-                        if let (true, SideKind::Fixed { value }) = (edge, kind) {
-                            diag += 2.0 * c;
-                            bc += 2.0 * c * value;
+                    let uw = fac * fu[p];
+                    let ue = fac * fu[p + 1];
+                    let vs = fac * fv[p];
+                    let vn = fac * fv[p + s];
+                    // Face conductances K h_f / dx with a depth field (times theta dt / dx in
+                    // the matrix), K / dx otherwise (the diffusion matrix adds those itself).
+                    let face = |c: f64, d: f64| Face { c, d, scheme };
+                    let (hw, he, hs, hn) = match depth {
+                        Some(d) => (d.fx[p] + eta1, d.fx[p + 1] + eta1, d.fy[p] + eta1, d.fy[p + s] + eta1),
+                        None => (1.0, 1.0, 1.0, 1.0),
+                    };
+                    let mut diag = 0.0;
+                    let mut bc = 0.0;
+                    // West face: flux into the cell is uw * (upwind value).
+                    face(cx, dx_cond * hw).terms(i == 0, b.west, uw, true, &mut diag, &mut aw[k], &mut bc);
+                    face(cx, dx_cond * he).terms(i + 1 == nx, b.east, ue, false, &mut diag, &mut ae[k], &mut bc);
+                    face(cy, dy_cond * hs).terms(j == 0, b.south, vs, true, &mut diag, &mut as_[k], &mut bc);
+                    face(cy, dy_cond * hn).terms(j + 1 == ny, b.north, vn, false, &mut diag, &mut an[k], &mut bc);
+                    if let Some(dep) = depth {
+                        // Central diffusion through open faces, and the new depth on the
+                        // diagonal (the operator adds 1 itself).
+                        let wet = |q: usize| m.wet[q] != 0;
+                        let inside = [
+                            (i > 0 || periodic_x) && wet(p - 1),
+                            (i + 1 < nx || periodic_x) && wet(p + 1),
+                            (j > 0 || periodic_y) && wet(p - s),
+                            (j + 1 < ny || periodic_y) && wet(p + s),
+                        ];
+                        let cond = [
+                            td * dx_cond * hw / g.dx,
+                            td * dx_cond * he / g.dx,
+                            td * dy_cond * hs / g.dy,
+                            td * dy_cond * hn / g.dy,
+                        ];
+                        let offs = [&mut aw[k], &mut ae[k], &mut as_[k], &mut an[k]];
+                        for ((open, c), off) in inside.into_iter().zip(cond).zip(offs) {
+                            if open {
+                                diag += c;
+                                *off += c;
+                            }
                         }
+                        let edges = [
+                            (i == 0, b.west, cond[0]),
+                            (i + 1 == nx, b.east, cond[1]),
+                            (j == 0, b.south, cond[2]),
+                            (j + 1 == ny, b.north, cond[3]),
+                        ];
+                        for (edge, kind, c) in edges {
+                            if let (true, SideKind::Fixed { value }) = (edge, kind) {
+                                diag += 2.0 * c;
+                                bc += 2.0 * c * value;
+                            }
+                        }
+                        diag += dep.cell[p] + eta1 - 1.0;
                     }
-                    diag += depth.map_or(0.0, |d| d.cell[p]) + eta1 - 1.0;
+                    d[k] = diag;
+                    bcr[k] = bc;
                 }
-                if !m.mask.is_wet(i, j) {
-                    diag = 0.0;
-                    bc = 0.0;
-                    aw[k] = 0.0;
-                    ae[k] = 0.0;
-                    as_[k] = 0.0;
-                    an[k] = 0.0;
-                }
-                d[k] = diag;
-                self.bc[k] = bc;
-            }
-        }
+            });
         // Uniform depth: the diffusion matrix carries K; Dirichlet diffusion at fixed sides has
         // the conductance 2 theta dt K / h^2 times the value. (With a depth field both are in
         // the coefficients above.)

@@ -9,6 +9,7 @@ mod explicit;
 mod implicit;
 pub(crate) mod kernel;
 mod snapshot;
+pub mod tide_bench;
 
 use crate::budget::{Budget, BudgetRow};
 use crate::diagnostics::advice::sig;

@@ -5,6 +5,7 @@ use super::fused::ring_rows;
 use super::Level;
 use crate::solve::blocks::{rows_per_block, MAX_BLOCKS};
 use crate::solve::stencil::Stencil5;
+use rayon::prelude::*;
 
 impl Level {
     pub(super) fn new(nx: usize, ny: usize, px: bool, py: bool) -> Self {
@@ -169,17 +170,53 @@ impl Dense {
 }
 
 /// The Galerkin coarse operator `P^T A P` for piecewise-constant P over water cells, with
-/// aggregation shifts `sx`, `sy`, and coarse couplings scaled by `scale` (row sums kept).
+/// aggregation shifts `sx`, `sy`, and coarse couplings scaled by `scale` (row sums kept). Coarse
+/// rows are formed in parallel, each from its own fine rows in order (no allocation).
 pub(super) fn galerkin(f: &Stencil5, c: &mut Stencil5, sx: u32, sy: u32, scale: f64) {
-    let (nx, ny, ncx) = (f.nx, f.ny, c.nx);
-    c.diag.fill(0.0);
+    let ncx = c.nx;
+    let rows = c
+        .diag
+        .par_chunks_mut(ncx)
+        .zip(c.aw.par_chunks_mut(ncx))
+        .zip(c.ae.par_chunks_mut(ncx))
+        .zip(c.as_.par_chunks_mut(ncx))
+        .zip(c.an.par_chunks_mut(ncx))
+        .zip(c.land.par_chunks_mut(ncx));
+    rows.with_min_len(4)
+        .enumerate()
+        .for_each(|(jc, (((((d, aw), ae), as_), an), land))| {
+            let mut row = CoarseRow {
+                d,
+                aw,
+                ae,
+                as_,
+                an,
+                land,
+            };
+            galerkin_row(f, &mut row, jc, sx, sy, scale);
+        });
+}
+
+/// One coarse row's coefficients.
+struct CoarseRow<'a> {
+    d: &'a mut [f64],
+    aw: &'a mut [f64],
+    ae: &'a mut [f64],
+    as_: &'a mut [f64],
+    an: &'a mut [f64],
+    land: &'a mut [bool],
+}
+
+/// Coarse row `jc` of [`galerkin`], summed from its fine rows south to north.
+fn galerkin_row(f: &Stencil5, c: &mut CoarseRow, jc: usize, sx: u32, sy: u32, scale: f64) {
+    let (nx, ny) = (f.nx, f.ny);
+    c.d.fill(0.0);
     c.aw.fill(0.0);
     c.ae.fill(0.0);
     c.as_.fill(0.0);
     c.an.fill(0.0);
     c.land.fill(true);
-    for j in 0..ny {
-        let jc = j >> sy;
+    for j in (jc << sy)..((jc + 1) << sy).min(ny) {
         let (js, jn) = f.nb_rows(j);
         for i in 0..nx {
             let k = j * nx + i;
@@ -187,28 +224,27 @@ pub(super) fn galerkin(f: &Stencil5, c: &mut Stencil5, sx: u32, sy: u32, scale: 
                 continue;
             }
             let ic = i >> sx;
-            let kc = jc * ncx + ic;
-            c.land[kc] = false;
-            c.diag[kc] += f.diag[k];
+            c.land[ic] = false;
+            c.d[ic] += f.diag[k];
             let iw = if i > 0 { i - 1 } else { nx - 1 };
             let ie = if i + 1 < nx { i + 1 } else { 0 };
             // West and east: the neighbour's aggregate is either this one or the one beside.
-            couple(f.aw[k], iw >> sx == ic, &mut c.diag[kc], &mut c.aw[kc]);
-            couple(f.ae[k], ie >> sx == ic, &mut c.diag[kc], &mut c.ae[kc]);
-            couple(f.as_[k], js >> sy == jc, &mut c.diag[kc], &mut c.as_[kc]);
-            couple(f.an[k], jn >> sy == jc, &mut c.diag[kc], &mut c.an[kc]);
+            couple(f.aw[k], iw >> sx == ic, &mut c.d[ic], &mut c.aw[ic]);
+            couple(f.ae[k], ie >> sx == ic, &mut c.d[ic], &mut c.ae[ic]);
+            couple(f.as_[k], js >> sy == jc, &mut c.d[ic], &mut c.as_[ic]);
+            couple(f.an[k], jn >> sy == jc, &mut c.d[ic], &mut c.an[ic]);
         }
     }
-    for kc in 0..c.cells() {
-        if c.land[kc] {
-            c.diag[kc] = 1.0;
+    for ic in 0..c.d.len() {
+        if c.land[ic] {
+            c.d[ic] = 1.0;
         } else if scale != 1.0 {
-            let off = c.aw[kc] + c.ae[kc] + c.as_[kc] + c.an[kc];
-            c.diag[kc] -= (1.0 - scale) * off;
-            c.aw[kc] *= scale;
-            c.ae[kc] *= scale;
-            c.as_[kc] *= scale;
-            c.an[kc] *= scale;
+            let off = c.aw[ic] + c.ae[ic] + c.as_[ic] + c.an[ic];
+            c.d[ic] -= (1.0 - scale) * off;
+            c.aw[ic] *= scale;
+            c.ae[ic] *= scale;
+            c.as_[ic] *= scale;
+            c.an[ic] *= scale;
         }
     }
 }
