@@ -19,6 +19,9 @@ pub(crate) struct StepOutcome {
     pub bad: bool,
     /// Largest |flow factor| over the step's stage times.
     pub max_factor: f64,
+    /// What the final stage set to zero below [`kernel::FLUSH_BELOW`], in the units of
+    /// `transported`.
+    pub flushed: f64,
 }
 
 /// Converts per-unit-length side flux sums into mass over `dt`, weighted by `w`.
@@ -65,6 +68,7 @@ pub(crate) fn sweep(
         }
         total.sum.add(blk.sums.sum.value());
         total.bad |= blk.sums.bad;
+        total.flushed += blk.sums.flushed;
     }
     total
 }
@@ -203,6 +207,7 @@ impl Explicit {
             if p.final_stage {
                 out.transported = sums.sum.value();
                 out.bad = sums.bad;
+                out.flushed = sums.flushed;
             }
         }
         // The final stage wrote into a or b: make it the state.

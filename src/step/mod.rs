@@ -590,6 +590,10 @@ impl Simulation {
         if decay != 1.0 {
             budget.add_decayed((1.0 - decay) * out.transported * m.mass_factor());
         }
+        if out.flushed != 0.0 {
+            // Values set to zero below the kernel's floor leave the water as decay does.
+            budget.add_decayed(out.flushed * m.mass_factor());
+        }
         let t1 = state.t + dt;
         for s in &m.sources {
             let mass = s.mass_between(state.t, t1);
