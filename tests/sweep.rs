@@ -178,3 +178,19 @@ fn killed_sweep_reruns_only_unfinished_members() {
     }
     assert!((0..n).all(|i| member_done(&root, i)));
 }
+
+// Common practice: the shipped sweep loads, every member validated, axes in file order.
+#[test]
+fn shipped_marina_sweep_loads() {
+    let s = tinct::sweep::load(
+        &common::root().join("scenarios/marina-sweep.toml"),
+        Some(Path::new("/tmp/x")),
+    )
+    .unwrap();
+    assert_eq!(s.members.len(), 32);
+    let keys: Vec<&str> = s.axes.iter().map(|a| a.key.as_str()).collect();
+    assert_eq!(keys, ["source[0].start", "tracer.diffusivity", "run.end"]);
+    assert_eq!(s.members[1].values, ["0", "0.15", "89424"]);
+    assert_eq!(s.root, Path::new("/tmp/x/marina-sweep"));
+    assert_eq!(s.member_dir(31), Path::new("/tmp/x/marina-sweep/members/0031"));
+}
