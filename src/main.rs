@@ -33,6 +33,9 @@ enum Command {
     Converge(cli::converge::ConvergeArgs),
     /// Grid-convergence index of three values from any code (Celik et al. 2008).
     Gci(cli::gci::GciArgs),
+    /// Run a sweep (an ensemble of one scenario with some keys varied): members on this machine
+    /// then the gather, or scripts for a batch scheduler; writes `<dir>/<sweep name>/`.
+    Sweep(cli::sweep::SweepArgs),
     /// Run the built-in verification cases, one row per case with its published source.
     Verify(cli::verify::VerifyArgs),
 }
@@ -46,6 +49,7 @@ fn main() -> ExitCode {
         Command::Compare(a) => cli::compare::main(a),
         Command::Converge(a) => cli::converge::main(a),
         Command::Gci(a) => cli::gci::main(a),
+        Command::Sweep(a) => cli::sweep::main(a),
         Command::Verify(a) => cli::verify::main(a),
     };
     match result {

@@ -34,6 +34,13 @@ fn shipped() -> Vec<PathBuf> {
         .unwrap()
         .map(|e| e.unwrap().path())
         .filter(|p| p.extension().is_some_and(|e| e == "toml"))
+        // Sweep files (`tinct sweep`) name a base scenario; they are not scenarios themselves.
+        .filter(|p| {
+            !std::fs::read_to_string(p)
+                .unwrap()
+                .lines()
+                .any(|l| l.starts_with("base = "))
+        })
         .collect();
     v.sort();
     v

@@ -9,6 +9,7 @@ pub mod converge;
 pub mod example;
 pub mod gci;
 pub mod run;
+pub mod sweep;
 pub mod verify;
 
 use tinct::ops::limiter::Limiter;

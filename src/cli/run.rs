@@ -141,7 +141,7 @@ pub fn main(a: RunArgs) -> Result<(), Failure> {
 /// A stop flag raised by the first SIGINT or SIGTERM; a second one ends the process at once
 /// with exit code 130 (every file in the folder is complete at any moment: logs are appended by
 /// whole rows, the rest is written atomically).
-fn stop_on_signals() -> std::io::Result<Arc<AtomicBool>> {
+pub fn stop_on_signals() -> std::io::Result<Arc<AtomicBool>> {
     use signal_hook::{consts::TERM_SIGNALS, flag};
     let stop = Arc::new(AtomicBool::new(false));
     for &sig in TERM_SIGNALS {

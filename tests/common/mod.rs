@@ -116,3 +116,53 @@ pub fn limit_file_size(cmd: &mut std::process::Command, limit: u64) {
         });
     }
 }
+
+/// Writes a small explicit base scenario for sweep tests into `dir` (`base.toml`): `nx` x
+/// `nx/2` cells of 10 m, a uniform current east, a puff released at `start`, a receptor
+/// downstream with a threshold, `end` seconds, two frames.
+pub fn write_sweep_base(dir: &Path, nx: usize, end: f64) -> PathBuf {
+    let text = format!(
+        r#"name = "base"
+[grid]
+nx = {nx}
+ny = {ny}
+dx = 10.0
+depth = 3.0
+[tracer]
+diffusivity = 0.5
+[flow]
+kind = "uniform"
+velocity = [0.1, 0.0]
+[boundary]
+west = "open"
+east = "open"
+south = "wall"
+north = "wall"
+[[source]]
+name = "spill"
+at = [60.0, 100.0]
+mass = 1.0e6
+start = 0.0
+spread = 20.0
+[[receptor]]
+name = "beach"
+at = [300.0, 100.0]
+threshold = 1.0
+[scheme]
+convection = "van_leer"
+[run]
+end = {end:?}
+frames = 2
+"#,
+        ny = nx / 2
+    );
+    let path = dir.join("base.toml");
+    std::fs::write(&path, text).unwrap();
+    path
+}
+
+/// `c_max(y, x)` of a run's `fields.nc`.
+pub fn c_max(fields_nc: &Path) -> Vec<f64> {
+    let mut r = netcdf3::FileReader::open(fields_nc).unwrap();
+    r.read_var("c_max").unwrap().get_f64_into().unwrap()
+}
