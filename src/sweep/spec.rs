@@ -335,7 +335,43 @@ pub fn value_text(v: &Value) -> Result<String, String> {
     }
 }
 
-/// A number as `--set` text: Rust's shortest round-trip form (`3600`, `0.15`).
+/// A number as `--set` text: Rust's shortest round-trip form (`3600`, `0.15`), in exponent
+/// form outside 1e-4 ..= 1e15 in magnitude (`1e30`, `2.5e-7`), where the plain form would be a
+/// long run of digits (and a whole number too large for a TOML integer).
 pub fn number_text(x: f64) -> String {
-    format!("{x}")
+    if x == 0.0 || (1e-4..1e15).contains(&x.abs()) {
+        format!("{x}")
+    } else {
+        format!("{x:e}")
+    }
+}
+
+#[cfg(test)]
+mod number_tests {
+    use super::number_text;
+
+    #[test]
+    fn numbers_read_back_as_the_same_toml_float() {
+        for x in [
+            0.0,
+            3600.0,
+            0.15,
+            -2.5,
+            1e30,
+            2.5e-7,
+            1e15,
+            9.99e14,
+            1e-4,
+            -3e-300,
+            f64::MAX,
+        ] {
+            let t = number_text(x);
+            let v: toml::Table = toml::from_str(&format!("v = {t}")).unwrap();
+            let back = v["v"]
+                .as_float()
+                .or_else(|| v["v"].as_integer().map(|n| n as f64))
+                .unwrap();
+            assert_eq!(back.to_bits(), x.to_bits(), "{x} -> {t}");
+        }
+    }
 }
