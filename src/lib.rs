@@ -61,5 +61,6 @@ pub mod scenario;
 pub mod solve;
 pub mod step;
 pub mod studies;
+pub mod sweep;
 
 pub use error::{ModelError, RunError};

@@ -1,0 +1,2 @@
+//! Parameter sweeps: many runs of one base scenario, and their gather.
+pub mod gather;
