@@ -268,6 +268,11 @@ pub fn read_member(dir: &Path, index: usize, values: Vec<String>) -> MemberOutco
     let reason = match (&code_text, exit_code, &summary) {
         (None, _, _) => Some("no exit_code (still running, or stopped before it was written)".to_string()),
         (Some(t), None, _) => Some(format!("exit_code holds `{}`, not a number", t.trim())),
+        (_, Some(c), Ok(s)) if c != 0 && s.error.is_some() => Some(format!(
+            "exited with code {c}; run status {}: {}",
+            s.status,
+            s.error.as_deref().unwrap_or_default()
+        )),
         (_, Some(c), _) if c != 0 => Some(format!("exited with code {c}")),
         (_, _, Err(e)) => Some(e.clone()),
         (_, _, Ok(s)) if s.status != "completed" => Some(match &s.error {
@@ -322,7 +327,8 @@ pub fn gather(root: &Path) -> Result<GatherSummary, GatherError> {
     if let Some(e) = &ens.maps {
         maps_out = maps::write_maps(&out_dir, &name, e, &finished, &mut files)?;
     }
-    plots::write_plots(&out_dir, &receptors, &mut files)?;
+    let units = ens.maps.as_ref().map(|m| m.tracer.1.clone()).unwrap_or_default();
+    plots::write_plots(&out_dir, &receptors, &units, &mut files)?;
     let mut summary = GatherSummary {
         root: root.to_path_buf(),
         name,

@@ -21,14 +21,19 @@ fn err(path: &Path, e: impl std::fmt::Debug) -> OutputError {
 }
 
 /// Writes one strip plot per quantity into `dir` (none when there are no receptors).
-pub fn write_plots(dir: &Path, receptors: &[ReceptorGather], files: &mut Vec<String>) -> Result<(), OutputError> {
+pub fn write_plots(
+    dir: &Path,
+    receptors: &[ReceptorGather],
+    units: &str,
+    files: &mut Vec<String>,
+) -> Result<(), OutputError> {
     if receptors.is_empty() {
         return Ok(());
     }
     for q in Quantity::ALL {
         let name = format!("receptor_{}.png", q.key());
         let path = dir.join(&name);
-        let img = draw(&path, receptors, q)?;
+        let img = draw(&path, receptors, q, units)?;
         crate::output::maps::save(&path, &img)?;
         files.push(format!("{}/{name}", super::GATHER_DIR));
     }
@@ -40,7 +45,7 @@ fn jitter(k: usize) -> f64 {
     ((k as f64 * 0.618_033_988_749_895).fract() - 0.5) * 0.44
 }
 
-fn draw(path: &Path, receptors: &[ReceptorGather], q: Quantity) -> Result<image::RgbImage, OutputError> {
+fn draw(path: &Path, receptors: &[ReceptorGather], q: Quantity, units: &str) -> Result<image::RgbImage, OutputError> {
     ensure_font().map_err(|e| err(path, e))?;
     let n = receptors.len();
     let width = (WIDTH_PER * n as u32 + 160).max(MIN_WIDTH);
@@ -61,7 +66,14 @@ fn draw(path: &Path, receptors: &[ReceptorGather], q: Quantity) -> Result<image:
         let (f, u) = time_unit(if hi.is_finite() { hi } else { 0.0 });
         (f, u.to_string())
     } else {
-        (1.0, "tracer units".to_string())
+        (
+            1.0,
+            if units.is_empty() {
+                "tracer units".to_string()
+            } else {
+                units.to_string()
+            },
+        )
     };
     let (ya, yb) = axis_range(&Axis::linear(""), lo.min(0.0) / scale, hi / scale, true);
     let members = receptors.iter().map(|r| r.members).max().unwrap_or(0);
@@ -87,7 +99,7 @@ fn draw(path: &Path, receptors: &[ReceptorGather], q: Quantity) -> Result<image:
             .y_desc(format!("{} [{unit}]", q.key().replace('_', " ")))
             .label_style((FONT, 13).into_font().color(&ink))
             .axis_desc_style((FONT, 14).into_font().color(&ink))
-            .light_line_style(RGBColor(240, 240, 243))
+            .light_line_style(WHITE)
             .bold_line_style(RGBColor(222, 222, 226))
             .draw()
             .map_err(|e| err(path, e))?;

@@ -46,7 +46,11 @@ fn worst_words(s: &GatherSummary, r: &ReceptorGather, q: Quantity) -> Option<Str
         .map(|(k, v)| format!("{k} = {v}"))
         .collect::<Vec<_>>()
         .join(", ");
-    Some(format!("member {} ({axes}): {}", w.member, value(q, w.value)))
+    let v = match q {
+        Quantity::Peak => format!("{} {}", num(w.value), s.tracer.1),
+        _ => value(q, w.value),
+    };
+    Some(format!("member {} ({axes}): {v}", w.member))
 }
 
 fn answer(s: &GatherSummary, r: &ReceptorGather) -> String {
