@@ -60,8 +60,7 @@ fn slurm_array_matches_local_backend() {
     // Meanwhile the same sweep on the local backend.
     let local = tinct(&["sweep", "s.toml", "--out", "local", "--quiet"], dir.path());
     let err = String::from_utf8_lossy(&local.stderr);
-    // Until the gather is merged its placeholder refuses after the members ran.
-    assert!(local.status.success() || err.contains("gather: not built yet"), "{err}");
+    assert!(local.status.success(), "{err}");
 
     let t0 = Instant::now();
     while !squeue(&["-h", "-j", &format!("{array},{gather}")]).trim().is_empty() {
@@ -96,8 +95,39 @@ fn slurm_array_matches_local_backend() {
             "member {i}: c_max differs between Slurm and the local backend"
         );
     }
-    // GATHER COMPARISON (to add once the gather is merged): the gather job ran after the array
-    // (its state COMPLETED in `squeue -h -t all -j <gather>`), `tinct sweep s.toml --out local
-    // --gather` gathered the local run, and `slurm/s/gather/ensemble.nc` equals
-    // `local/s/gather/ensemble.nc` byte for byte.
+    // The gather job ran after the array, and its probabilities and ensemble maximum equal
+    // those the local backend gathered, bit for bit.
+    let gstates = squeue(&["-h", "-t", "all", "-j", gather, "-o", "%i %T"]);
+    assert!(
+        gstates.lines().any(|l| l.trim() == format!("{gather} COMPLETED")),
+        "gather job not COMPLETED: {gstates}"
+    );
+    let (slurm_nc, local_nc) = (
+        root.join("gather/ensemble.nc"),
+        dir.path().join("local/s/gather/ensemble.nc"),
+    );
+    let names: Vec<String> = {
+        let r = netcdf3::FileReader::open(&slurm_nc).unwrap();
+        r.data_set().get_var_names()
+    };
+    let compared: Vec<&String> = names
+        .iter()
+        .filter(|n| n.starts_with("probability_above_") || *n == "c_max_ensemble")
+        .collect();
+    assert!(compared.len() >= 2, "variables in ensemble.nc: {names:?}");
+    for name in compared {
+        let read = |p: &std::path::Path| {
+            let mut r = netcdf3::FileReader::open(p).unwrap();
+            r.read_var(name).unwrap().get_f64_into().unwrap()
+        };
+        let (a, b) = (read(&slurm_nc), read(&local_nc));
+        assert_eq!(a.len(), b.len());
+        assert!(
+            a.iter().zip(&b).all(|(x, y)| x.to_bits() == y.to_bits()),
+            "{name} differs between the Slurm gather and the local one"
+        );
+        if name.starts_with("probability_above_") {
+            assert!(a.iter().any(|&p| p > 0.0), "{name} is zero everywhere");
+        }
+    }
 }

@@ -55,6 +55,10 @@ pub struct BenchArgs {
     /// (built from `DIR/src/advect.c` with `cc`), interleaved in `--reps` rounds.
     #[arg(long, value_name = "DIR")]
     peer: Option<PathBuf>,
+    /// Instead, time the gather of a sweep: fabricate this many members of the built-in
+    /// 200 x 100 grid in a temporary folder and gather them `--reps` times (default 3).
+    #[arg(long, value_name = "MEMBERS")]
+    gather: Option<usize>,
 }
 
 /// Runs `tinct bench`.
@@ -73,6 +77,7 @@ pub fn main(a: BenchArgs) -> Result<(), Failure> {
         outputs,
         scenario,
         peer,
+        gather,
     } = a;
     let all_schemes = schemes.iter().any(|n| n == "all");
     let schemes = parse_schemes(&schemes)?;
@@ -81,6 +86,9 @@ pub fn main(a: BenchArgs) -> Result<(), Failure> {
             .num_threads(t)
             .build_global()
             .map_err(|e| bad_input(format!("--threads: {e}")))?;
+    }
+    if let Some(members) = gather {
+        return gather_bench(members, reps.unwrap_or(3));
     }
     if let Some(dir) = peer {
         let sizes = sizes.unwrap_or_else(|| vec![256, 512, 1024, 2048]);
@@ -290,6 +298,31 @@ fn outputs_bench(scenario: Option<&std::path::Path>, reps: usize) -> Result<(), 
         f / b,
         median(&ratios),
         100.0 * (median(&ratios) - 1.0)
+    );
+    Ok(())
+}
+
+/// `--gather MEMBERS`: fabricated members gathered `reps` times; the median is the figure.
+fn gather_bench(members: usize, reps: usize) -> Result<(), Failure> {
+    if members == 0 || reps == 0 {
+        return Err(bad_input("--gather and --reps: at least 1"));
+    }
+    let dir = std::env::temp_dir().join(format!("tinct-gather-bench-{}", std::process::id()));
+    let r = tinct::sweep::gather::bench::run(&dir, members, reps);
+    let _ = std::fs::remove_dir_all(&dir);
+    let r = r.map_err(failed)?;
+    println!(
+        "gather of {} members x {} cells ({} thread(s)): fabricated in {:.1} s; gathers {} s; median {:.2} s",
+        r.members,
+        r.cells,
+        rayon::current_num_threads(),
+        r.fabricate_seconds,
+        r.seconds
+            .iter()
+            .map(|s| format!("{s:.2}"))
+            .collect::<Vec<_>>()
+            .join(", "),
+        r.median()
     );
     Ok(())
 }

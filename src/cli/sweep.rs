@@ -110,13 +110,65 @@ fn member(sweep: &Sweep, i: usize) -> Result<(), Failure> {
     }
 }
 
-/// `--gather`.
+/// `--gather`: gathers and prints the answers (the library computes, this prints).
 fn gather(sweep: &Sweep) -> Result<(), Failure> {
-    tinct::sweep::gather::gather(&sweep.root).map_err(|e| failed(e.to_string()))?;
+    use tinct::sweep::gather::{MemberState, Quantity};
+    let s = tinct::sweep::gather::gather(&sweep.root).map_err(|e| Failure {
+        code: u8::try_from(e.exit_code()).unwrap_or(1),
+        message: e.to_string(),
+    })?;
+    println!("sweep {}: {}", s.name, s.finished_line());
+    for m in &s.members {
+        if let MemberState::Failed {
+            exit_code,
+            reason,
+            stderr_tail,
+        } = &m.state
+        {
+            let code = exit_code.map_or_else(|| "no exit code".to_string(), |c| format!("exit code {c}"));
+            println!("  member {} ({}): {code}; {reason}", m.index, m.describe(&s.keys));
+            if let Some(last) = stderr_tail.last() {
+                println!("    stderr: {last}");
+            }
+        }
+    }
+    let units = &s.tracer.1;
+    for r in &s.receptors {
+        let peak = r.get(Quantity::Peak);
+        if let Some(d) = peak.dist {
+            println!(
+                "  {}: peak 5/50/95 % {:.3e} / {:.3e} / {:.3e} {units} over {} member(s)",
+                r.name, d.p5, d.p50, d.p95, r.members
+            );
+        }
+        if let Some(t) = r.threshold {
+            println!("    reached {t:e} {units} in {} of {} member(s)", r.reached, r.members);
+        }
+        if let Some(w) = &peak.worst {
+            let at: Vec<String> = s
+                .keys
+                .iter()
+                .zip(&w.values)
+                .map(|(k, v)| format!("{k} = {v}"))
+                .collect();
+            println!(
+                "    highest peak {:.3e} {units}: member {} ({})",
+                w.value,
+                w.member,
+                at.join(", ")
+            );
+        }
+    }
+    for m in &s.maps {
+        println!(
+            "  probability of reaching {:e} {units}: {} cell(s) in some member, {} in every one ({})",
+            m.threshold, m.cells_any, m.cells_all, m.png
+        );
+    }
     println!(
         "gathered: {} and {}",
         sweep.root.join("gather").display(),
-        sweep.root.join("report.html").display()
+        s.report.display()
     );
     Ok(())
 }

@@ -12,6 +12,7 @@
 //!   colour bar) for `tinct check`.
 //! - [`netcdf`]: CF-1.8 NetCDF-3 field files ([`FieldsWriter`], [`FieldMeta`],
 //!   [`FILL_VALUE`]), written record by record.
+//! - [`ncmaps`]: CF-1.8 NetCDF-3 files of several 2D `(y, x)` maps ([`ncmaps::write_maps`]).
 //! - [`chart`]: line charts drawn with plotters ([`chart::Chart`]: linear or log axes,
 //!   reference lines, marked points, a legend sized from its text).
 //! - [`plot`]: study panels of equally scaled map tiles and the PNG writer [`plot::write_png`].
@@ -27,6 +28,7 @@ mod draw;
 pub mod error;
 pub mod frame;
 pub mod maps;
+pub mod ncmaps;
 pub mod netcdf;
 pub mod plot;
 mod text;

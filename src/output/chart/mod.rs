@@ -9,6 +9,7 @@
 //! explicit axis bound and non-positive values on a logarithmic axis break a line.
 
 mod render;
+pub(crate) use render::ensure_font;
 #[cfg(test)]
 mod tests;
 

@@ -18,7 +18,7 @@ const LIGHT_GRID: Rgb = [240, 240, 243];
 const REF_GREY: Rgb = [90, 90, 96];
 
 /// Registers the embedded DejaVu Sans with plotters once; later calls return the first result.
-fn ensure_font() -> Result<(), String> {
+pub(crate) fn ensure_font() -> Result<(), String> {
     static DONE: OnceLock<Result<(), String>> = OnceLock::new();
     DONE.get_or_init(|| {
         plotters::style::register_font(FONT, FontStyle::Normal, dejavu::sans::regular())
