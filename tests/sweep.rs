@@ -186,8 +186,16 @@ fn shipped_marina_sweep_loads() {
     .unwrap();
     assert_eq!(s.members.len(), 32);
     let keys: Vec<&str> = s.axes.iter().map(|a| a.key.as_str()).collect();
-    assert_eq!(keys, ["source[0].start", "tracer.diffusivity", "run.end"]);
-    assert_eq!(s.members[1].values, ["0", "0.15", "89424"]);
+    assert_eq!(
+        keys,
+        [
+            "source[0].start",
+            "tracer.diffusivity",
+            "run.end",
+            "receptor[0].threshold"
+        ]
+    );
+    assert_eq!(s.members[1].values, ["0", "0.15", "89424", "15"]);
     assert_eq!(s.root, Path::new("/tmp/x/marina-sweep"));
     assert_eq!(s.member_dir(31), Path::new("/tmp/x/marina-sweep/members/0031"));
 }
