@@ -292,3 +292,63 @@ fn studies_check_their_output_folder_before_any_run() {
         assert!(text(&o).contains("nothing was run"), "{}", text(&o));
     }
 }
+
+/// A fixed explicit step at Courant number 1 with diffusion (Courant 1 + 2 x diffusion number
+/// 0.2 = 1.4): each limit alone allowed it, and the run grew without bound while staying under
+/// the blow-up limit, ending "completed". The combined bound `C + 2 D <= 1` (von Neumann
+/// analysis of forward-Euler upwind with central diffusion, shortest wave: amplification
+/// 1 - 2 (C + 2 D); common practice) refuses it, and `--force` shows why.
+#[test]
+fn a_fixed_step_over_the_combined_limit_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("s.toml");
+    std::fs::write(
+        &path,
+        r#"name = "s"
+[grid]
+nx = 60
+ny = 20
+dx = 10.0
+depth = 2.0
+[tracer]
+diffusivity = 1.0
+[flow]
+kind = "uniform"
+velocity = [1.0, 0.0]
+[boundary]
+west = "periodic"
+east = "periodic"
+south = "periodic"
+north = "periodic"
+[initial]
+kind = "gaussian"
+centre = [300.0, 100.0]
+sigma = 30.0
+peak = 1.0
+[scheme]
+convection = "upwind"
+stages = 1
+dt = 10.0
+[run]
+end = 3000.0
+frames = 1
+"#,
+    )
+    .unwrap();
+    let p = path.to_string_lossy().into_owned();
+    let o = tinct(&["run", &p, "--quiet"], dir.path());
+    let all = text(&o);
+    assert_eq!(o.status.code(), Some(2), "{all}");
+    assert!(all.contains("scheme.dt") || all.contains("dt"), "{all}");
+    assert!(all.contains("1.400"), "the message gives C + 2 D: {all}");
+    // The same with --force: the shortest wave grows by |1 - 2 x 1.4| = 1.8 per step.
+    let o = tinct(&["run", &p, "--quiet", "--force"], dir.path());
+    let s: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.path().join("out/s/summary.json")).unwrap()).unwrap();
+    let max_ever = s["max_ever"].as_f64().or_else(|| s["max"].as_f64());
+    assert!(
+        o.status.code() == Some(1) || max_ever.is_some_and(|m| m > 1.5),
+        "{}\n{s}",
+        text(&o)
+    );
+}
