@@ -23,7 +23,7 @@ use std::io::{self, BufWriter, Seek, SeekFrom, Write};
 use std::path::{Path, PathBuf};
 use std::sync::{Arc, Mutex};
 
-use ndarray::ArrayView2;
+use ndarray::{ArrayView2, ArrayView3};
 use netcdf3::{DataSet, FileWriter, Version};
 
 use super::{AtomicFile, OutputError};
@@ -406,27 +406,35 @@ impl FieldsWriter {
         self.with_writer(&ds, |fw| fw.write_var_f64(MAX_VAR, &data))
     }
 
-    /// Writes `hours_above(threshold, y, x)` and the `threshold` coordinate: one `ny * nx`
-    /// vector of hours per threshold given at creation; land and NaN become [`FILL_VALUE`].
-    pub fn write_hours_above(&mut self, hours: &[Vec<f64>], wet: Option<&[bool]>) -> Result<(), OutputError> {
-        let n = self.nx * self.ny;
-        if hours.len() != self.meta.thresholds.len() || hours.iter().any(|h| h.len() != n) {
+    /// Writes `hours_above(threshold, y, x)` and the `threshold` coordinate: `hours` of shape
+    /// (thresholds given at creation, ny, nx), row 0 south; land and NaN become [`FILL_VALUE`].
+    pub fn write_hours_above(
+        &mut self,
+        hours: ArrayView3<f64>,
+        wet: Option<ArrayView2<bool>>,
+    ) -> Result<(), OutputError> {
+        let nt = self.meta.thresholds.len();
+        if hours.shape() != [nt, self.ny, self.nx] {
             return Err(OutputError::invalid(
                 self.atomic.target(),
                 format!(
-                    "hours_above needs {} thresholds of ny*nx = {n} values",
-                    self.meta.thresholds.len()
+                    "hours_above has shape {:?}, expected (thresholds, ny, nx) = ({nt}, {}, {})",
+                    hours.shape(),
+                    self.ny,
+                    self.nx
                 ),
             ));
         }
-        if hours.is_empty() {
+        if let Some(w) = &wet {
+            self.check_shape("wet mask", w.shape())?;
+        }
+        if nt == 0 {
             return Ok(());
         }
         let data: Vec<f64> = hours
-            .iter()
-            .flat_map(|h| h.iter().enumerate())
-            .map(|(k, &v)| {
-                if wet.is_none_or(|w| w[k]) && !v.is_nan() {
+            .indexed_iter()
+            .map(|((_, j, i), &v)| {
+                if wet.as_ref().is_none_or(|w| w[[j, i]]) && !v.is_nan() {
                     v
                 } else {
                     FILL_VALUE
@@ -587,9 +595,11 @@ mod tests {
         };
         let mut w = FieldsWriter::create(&p, &[0.0, 1.0], &[0.0], 1, &meta).unwrap();
         w.write_record(0.0, row(&[1.0, 2.0]), None).unwrap();
-        assert!(w.write_hours_above(&[vec![1.0, 2.0]], None).is_err());
-        w.write_hours_above(&[vec![1.0, 2.0], vec![0.5, f64::NAN]], Some(&[true, true]))
-            .unwrap();
+        let one = ndarray::Array3::from_shape_vec((1, 1, 2), vec![1.0, 2.0]).unwrap();
+        assert!(w.write_hours_above(one.view(), None).is_err());
+        let two = ndarray::Array3::from_shape_vec((2, 1, 2), vec![1.0, 2.0, 0.5, f64::NAN]).unwrap();
+        let wet = ndarray::Array2::from_elem((1, 2), true);
+        w.write_hours_above(two.view(), Some(wet.view())).unwrap();
         w.finish().unwrap();
         let mut r = FileReader::open(&p).unwrap();
         let ds = r.data_set();

@@ -254,11 +254,15 @@ impl Exceedance {
         out
     }
 
-    /// Hours above each threshold per cell (`nx * ny` per threshold), for `fields.nc`.
-    pub fn hours_above(&self) -> Vec<Vec<f64>> {
-        (0..self.thresholds.len())
-            .map(|k| self.seconds_above(k).iter().map(|&x| x / 3600.0).collect())
-            .collect()
+    /// Hours at or above each threshold per cell, shape (thresholds, ny, nx), row 0 south, as
+    /// `hours_above(threshold, y, x)` in `fields.nc`.
+    pub fn hours_above(&self) -> ndarray::Array3<f64> {
+        let nx = self.nx.max(1);
+        let ny = self.wet_u8.len() / nx;
+        let seconds: Vec<Vec<f64>> = (0..self.thresholds.len()).map(|k| self.seconds_above(k)).collect();
+        ndarray::Array3::from_shape_fn((seconds.len(), ny, self.nx), |(k, j, i)| {
+            seconds[k][j * nx + i] / 3600.0
+        })
     }
 
     /// The figures per threshold; `c_max` is the envelope (`nx * ny`) and `centre` gives a

@@ -443,7 +443,7 @@ pub fn execute_with(
         logs.sync()?;
         fields.write_max(cells_view(&grid, &envelope.c_max, &nc_path)?, Some(wet_yx.view()))?;
         if let Some(e) = &exceed {
-            fields.write_hours_above(&e.hours_above(), Some(&wet))?;
+            fields.write_hours_above(e.hours_above().view(), Some(wet_yx.view()))?;
         }
         fields.finish()?;
         let lowest = rows.iter().map(|r| r.min).fold(f64::INFINITY, f64::min);

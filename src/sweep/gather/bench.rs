@@ -128,8 +128,8 @@ pub fn fabricate(dir: &Path, members: usize) -> Result<std::path::PathBuf, Strin
         let mut w = FieldsWriter::create(&d.join("fields.nc"), &x, &y, 1, &meta).map_err(|x| e(&x))?;
         w.write_record(0.0, view, None).map_err(|x| e(&x))?;
         w.write_max(view, None).map_err(|x| e(&x))?;
-        let zeros = vec![vec![0.0; c.len()]; th.len()];
-        w.write_hours_above(&zeros, None).map_err(|x| e(&x))?;
+        let zeros = ndarray::Array3::zeros((th.len(), view.nrows(), view.ncols()));
+        w.write_hours_above(zeros.view(), None).map_err(|x| e(&x))?;
         w.finish().map_err(|x| e(&x))
     })?;
     Ok(root)
