@@ -75,6 +75,8 @@ pub(super) struct StepContext<'a> {
     stride: usize,
     dx: f64,
     dy: f64,
+    inv_dx: f64,
+    inv_dy: f64,
     x0: f64,
     y0: f64,
     dt: f64,
@@ -102,6 +104,8 @@ impl<'a> StepContext<'a> {
             stride: g.stride(),
             dx: g.dx,
             dy: g.dy,
+            inv_dx: 1.0 / g.dx,
+            inv_dy: 1.0 / g.dy,
             x0: g.x0,
             y0: g.y0,
             dt,
@@ -148,10 +152,10 @@ impl<'a> StepContext<'a> {
             let before = *m;
             *m *= self.decay;
             tally.decayed += before - *m;
-            let gx = (*x - self.x0) / self.dx;
-            let gy = (*y - self.y0) / self.dy;
-            let i = (gx.floor() as isize).clamp(0, self.nx as isize - 1);
-            let j = (gy.floor() as isize).clamp(0, self.ny as isize - 1);
+            let gx = (*x - self.x0) * self.inv_dx;
+            let gy = (*y - self.y0) * self.inv_dy;
+            let i = floor(gx).clamp(0, self.nx as isize - 1);
+            let j = floor(gy).clamp(0, self.ny as isize - 1);
             let (ax, ay) = (gx - i as f64, gy - j as f64);
             let (vu, vv) = self.velocity(i, j, ax, ay);
             let (du, dv) = self.drift(i, j, ax, ay);
@@ -160,13 +164,13 @@ impl<'a> StepContext<'a> {
             } else {
                 (0.0, 0.0)
             };
-            let step_x = (vu + du) * self.dt / self.dx + self.sx * rx;
-            let step_y = (vv + dv) * self.dt / self.dy + self.sy * ry;
+            let step_x = (vu + du) * self.dt * self.inv_dx + self.sx * rx;
+            let step_y = (vv + dv) * self.dt * self.inv_dy + self.sy * ry;
             let sides_x = (self.sides[Side::West.index()], self.sides[Side::East.index()]);
             let nx_cell = match move_axis(gx, i, step_x, self.nx, sides_x, |c| self.is_wet(c, j)) {
                 Moved::To(p) => {
                     *x = self.x0 + p * self.dx;
-                    (p.floor() as isize).clamp(0, self.nx as isize - 1)
+                    floor(p).clamp(0, self.nx as isize - 1)
                 }
                 Moved::Out(s) => {
                     tally.out[[Side::West, Side::East][s].index()] += *m;
@@ -244,6 +248,18 @@ impl<'a> StepContext<'a> {
     }
 }
 
+/// `x.floor()` as an integer, inlined (the library call is not, without SSE4.1); finite `x`
+/// within the isize range.
+#[inline(always)]
+fn floor(x: f64) -> isize {
+    let t = x as isize;
+    if (t as f64) > x {
+        t - 1
+    } else {
+        t
+    }
+}
+
 /// Moves a position `pos` (cell units, in cell `c` of `0..n`) by `d` cells along one axis;
 /// `wet(k)` says whether cell k of the line is water; `sides` are the low and high sides.
 #[inline]
@@ -255,7 +271,7 @@ fn move_axis(pos: f64, c0: isize, d: f64, n: usize, sides: (SideKind, SideKind),
     }
     let mut c = c0;
     for _ in 0..=MAX_BOUNCES {
-        let mut tc = target.floor() as isize;
+        let mut tc = floor(target);
         let s = if tc > c { 1 } else { -1 };
         let mut bounced = false;
         while c != tc {
