@@ -55,6 +55,7 @@ pub mod model;
 pub mod ops;
 pub mod output;
 pub mod par;
+pub mod particles;
 pub mod report;
 pub mod run;
 pub mod scenario;

@@ -1,0 +1,324 @@
+//! One particle step: face velocities on the C-grid, the depth drift, the Gaussian walk, and
+//! the cell-by-cell move that reflects at land and walls, wraps at periodic sides and stops at
+//! open ones.
+//!
+//! Velocity at a point of cell (i, j) with fractions (ax, ay) across it: `u` is linear in x
+//! between the cell's west and east faces, and linear in y between that row and the
+//! neighbouring row on the point's side of the cell centre (the cell's own row when the
+//! neighbour is land or beyond a side, a free-slip wall); `v` likewise with the axes swapped.
+//! With a depth field, face transports are divided by the face depth at the step's level.
+//!
+//! Drift `K (dh/dx) / h` per axis (K constant per axis): the depth is taken linear across the
+//! cell between its face depths, so its gradient is the face difference over the cell width.
+//!
+//! The move is split by axis: x along the particle's row, then y along its new column. Each
+//! walks the cells the step crosses; crossing into land or a wall mirrors the rest of the step
+//! about that face (up to [`MAX_BOUNCES`] times, else the particle stays where it was), so a
+//! particle never ends a step on land.
+
+use crate::model::Model;
+use crate::ops::boundary::{Side, SideKind};
+use rand::RngExt;
+use rand_distr::StandardNormal;
+use rand_xoshiro::Xoshiro256PlusPlus;
+
+/// Reflections tried within one axis of one step before the particle is held in place.
+pub(crate) const MAX_BOUNCES: usize = 4;
+
+/// Face velocities (m/s, padded layout) at time `t` into `u`, `v`; `dt` gives the rate of rise
+/// of a tidal level over the step.
+pub(super) fn velocities_at(m: &Model, t: f64, dt: f64, u: &mut [f64], v: &mut [f64]) {
+    let f = &m.flow;
+    if f.has_fill() {
+        let rate = if dt > 0.0 {
+            (f.level(t + dt) - f.level(t)) / dt
+        } else {
+            0.0
+        };
+        f.faces_at(t, rate, u, v);
+    } else {
+        let k = f.factor(t);
+        for (o, b) in u.iter_mut().zip(&f.u) {
+            *o = k * b;
+        }
+        for (o, b) in v.iter_mut().zip(&f.v) {
+            *o = k * b;
+        }
+    }
+    if let (true, Some(d)) = (f.is_transport(), &m.depth_field) {
+        let eta = f.level(t);
+        let per_depth = |q: &mut f64, h: f64| *q = if h + eta > 0.0 { *q / (h + eta) } else { 0.0 };
+        u.iter_mut().zip(&d.fx).for_each(|(q, &h)| per_depth(q, h));
+        v.iter_mut().zip(&d.fy).for_each(|(q, &h)| per_depth(q, h));
+    }
+}
+
+/// What one chunk of particles sent out of the sides and lost to decay in a step.
+#[derive(Debug, Clone, Copy, Default)]
+pub(super) struct ChunkTally {
+    pub out: [f64; 4],
+    pub decayed: f64,
+}
+
+/// Where an axis move ended.
+enum Moved {
+    /// Inside, at this position in cell units.
+    To(f64),
+    /// Out through the low (0) or high (1) side.
+    Out(usize),
+}
+
+/// Everything a step needs, shared read-only by the chunks.
+pub(super) struct StepContext<'a> {
+    nx: usize,
+    ny: usize,
+    stride: usize,
+    dx: f64,
+    dy: f64,
+    inv_dx: f64,
+    inv_dy: f64,
+    x0: f64,
+    y0: f64,
+    dt: f64,
+    wet: &'a [u8],
+    u: &'a [f64],
+    v: &'a [f64],
+    /// Face depths at the step's level, when the depth varies and the drift is on.
+    depth: Option<(&'a [f64], &'a [f64], f64)>,
+    kx: f64,
+    ky: f64,
+    /// Standard deviations of the walk per axis in cell units.
+    sx: f64,
+    sy: f64,
+    decay: f64,
+    sides: [SideKind; 4],
+}
+
+impl<'a> StepContext<'a> {
+    pub(super) fn new(m: &'a Model, t: f64, dt: f64, drift: bool, u: &'a [f64], v: &'a [f64]) -> Self {
+        let g = &m.grid;
+        let b = &m.boundaries;
+        Self {
+            nx: g.nx,
+            ny: g.ny,
+            stride: g.stride(),
+            dx: g.dx,
+            dy: g.dy,
+            inv_dx: 1.0 / g.dx,
+            inv_dy: 1.0 / g.dy,
+            x0: g.x0,
+            y0: g.y0,
+            dt,
+            wet: &m.wet,
+            u,
+            v,
+            depth: m
+                .depth_field
+                .as_ref()
+                .filter(|_| drift)
+                .map(|d| (&d.fx[..], &d.fy[..], m.flow.level(t))),
+            kx: m.kx,
+            ky: m.ky,
+            sx: (2.0 * m.kx * dt).sqrt() / g.dx,
+            sy: (2.0 * m.ky * dt).sqrt() / g.dy,
+            decay: crate::ops::sources::decay_factor(m.decay_rate, dt),
+            sides: [b.west, b.east, b.south, b.north],
+        }
+    }
+
+    #[inline]
+    fn idx(&self, i: isize, j: isize) -> usize {
+        ((j + 2) as usize) * self.stride + (i + 2) as usize
+    }
+
+    #[inline]
+    fn is_wet(&self, i: isize, j: isize) -> bool {
+        self.wet[self.idx(i, j)] != 0
+    }
+
+    /// Advances one chunk of particles by the step, drawing from `rng` in particle order.
+    pub(super) fn advance_chunk(
+        &self,
+        xs: &mut [f64],
+        ys: &mut [f64],
+        ms: &mut [f64],
+        rng: &mut Xoshiro256PlusPlus,
+    ) -> ChunkTally {
+        let mut tally = ChunkTally::default();
+        for ((x, y), m) in xs.iter_mut().zip(ys.iter_mut()).zip(ms.iter_mut()) {
+            if x.is_nan() {
+                continue;
+            }
+            let before = *m;
+            *m *= self.decay;
+            tally.decayed += before - *m;
+            let gx = (*x - self.x0) * self.inv_dx;
+            let gy = (*y - self.y0) * self.inv_dy;
+            let i = floor(gx).clamp(0, self.nx as isize - 1);
+            let j = floor(gy).clamp(0, self.ny as isize - 1);
+            let (ax, ay) = (gx - i as f64, gy - j as f64);
+            let (vu, vv) = self.velocity(i, j, ax, ay);
+            let (du, dv) = self.drift(i, j, ax, ay);
+            let (rx, ry): (f64, f64) = if self.sx > 0.0 || self.sy > 0.0 {
+                (rng.sample(StandardNormal), rng.sample(StandardNormal))
+            } else {
+                (0.0, 0.0)
+            };
+            let step_x = (vu + du) * self.dt * self.inv_dx + self.sx * rx;
+            let step_y = (vv + dv) * self.dt * self.inv_dy + self.sy * ry;
+            let sides_x = (self.sides[Side::West.index()], self.sides[Side::East.index()]);
+            let nx_cell = match move_axis(gx, i, step_x, self.nx, sides_x, |c| self.is_wet(c, j)) {
+                Moved::To(p) => {
+                    *x = self.x0 + p * self.dx;
+                    floor(p).clamp(0, self.nx as isize - 1)
+                }
+                Moved::Out(s) => {
+                    tally.out[[Side::West, Side::East][s].index()] += *m;
+                    (*x, *m) = (f64::NAN, 0.0);
+                    continue;
+                }
+            };
+            let sides_y = (self.sides[Side::South.index()], self.sides[Side::North.index()]);
+            match move_axis(gy, j, step_y, self.ny, sides_y, |c| self.is_wet(nx_cell, c)) {
+                Moved::To(p) => *y = self.y0 + p * self.dy,
+                Moved::Out(s) => {
+                    tally.out[[Side::South, Side::North][s].index()] += *m;
+                    (*x, *m) = (f64::NAN, 0.0);
+                }
+            }
+        }
+        tally
+    }
+
+    /// Interpolated velocity (m/s) at fractions (ax, ay) of cell (i, j).
+    #[inline]
+    fn velocity(&self, i: isize, j: isize, ax: f64, ay: f64) -> (f64, f64) {
+        let s = self.stride;
+        let p = self.idx(i, j);
+        let u_row = |q: usize| (1.0 - ax) * self.u[q] + ax * self.u[q + 1];
+        let v_col = |q: usize| (1.0 - ay) * self.v[q] + ay * self.v[q + s];
+        // Neighbouring row (for u) and column (for v) on the point's side of the centre.
+        let (jn, wy) = if ay >= 0.5 {
+            (j + 1, ay - 0.5)
+        } else {
+            (j - 1, 0.5 - ay)
+        };
+        let (in_, wx) = if ax >= 0.5 {
+            (i + 1, ax - 0.5)
+        } else {
+            (i - 1, 0.5 - ax)
+        };
+        let own_u = u_row(p);
+        let u = if (0..self.ny as isize).contains(&jn) && self.is_wet(i, jn) {
+            (1.0 - wy) * own_u + wy * u_row(self.idx(i, jn))
+        } else {
+            own_u
+        };
+        let own_v = v_col(p);
+        let v = if (0..self.nx as isize).contains(&in_) && self.is_wet(in_, j) {
+            (1.0 - wx) * own_v + wx * v_col(self.idx(in_, j))
+        } else {
+            own_v
+        };
+        (u, v)
+    }
+
+    /// Drift `K (dh/dx) / h`, `K (dh/dy) / h` (m/s) at fractions (ax, ay) of cell (i, j).
+    #[inline]
+    fn drift(&self, i: isize, j: isize, ax: f64, ay: f64) -> (f64, f64) {
+        let Some((fx, fy, eta)) = self.depth else {
+            return (0.0, 0.0);
+        };
+        let p = self.idx(i, j);
+        let (hw, he) = (fx[p] + eta, fx[p + 1] + eta);
+        let (hs, hn) = (fy[p] + eta, fy[p + self.stride] + eta);
+        let hx = hw + ax * (he - hw);
+        let hy = hs + ay * (hn - hs);
+        let dx = if hx > 0.0 {
+            self.kx * (he - hw) / (self.dx * hx)
+        } else {
+            0.0
+        };
+        let dy = if hy > 0.0 {
+            self.ky * (hn - hs) / (self.dy * hy)
+        } else {
+            0.0
+        };
+        (dx, dy)
+    }
+}
+
+/// `x.floor()` as an integer, inlined (the library call is not, without SSE4.1); finite `x`
+/// within the isize range.
+#[inline(always)]
+fn floor(x: f64) -> isize {
+    let t = x as isize;
+    if (t as f64) > x {
+        t - 1
+    } else {
+        t
+    }
+}
+
+/// Moves a position `pos` (cell units, in cell `c` of `0..n`) by `d` cells along one axis;
+/// `wet(k)` says whether cell k of the line is water; `sides` are the low and high sides.
+#[inline]
+fn move_axis(pos: f64, c0: isize, d: f64, n: usize, sides: (SideKind, SideKind), wet: impl Fn(isize) -> bool) -> Moved {
+    let n = n as isize;
+    let mut target = pos + d;
+    if !target.is_finite() {
+        return Moved::To(pos);
+    }
+    let mut c = c0;
+    for _ in 0..=MAX_BOUNCES {
+        let mut tc = floor(target);
+        let s = if tc > c { 1 } else { -1 };
+        let mut bounced = false;
+        while c != tc {
+            let next = c + s;
+            let mut shift = 0;
+            if !(0..n).contains(&next) {
+                let (kind, which) = if next < 0 { (sides.0, 0) } else { (sides.1, 1) };
+                match kind {
+                    SideKind::Wall => {
+                        let face = if s > 0 { next as f64 } else { c as f64 };
+                        target = 2.0 * face - target;
+                        bounced = true;
+                        break;
+                    }
+                    SideKind::Periodic => shift = s * n,
+                    SideKind::Open { .. } | SideKind::Fixed { .. } => return Moved::Out(which),
+                }
+            }
+            if !wet(next - shift) {
+                // Mirror about the face between c and next (before any wrap).
+                let face = if s > 0 { next as f64 } else { c as f64 };
+                target = 2.0 * face - target;
+                bounced = true;
+                break;
+            }
+            c = next - shift;
+            target -= shift as f64;
+            tc -= shift;
+        }
+        if !bounced {
+            return Moved::To(target);
+        }
+    }
+    Moved::To(pos)
+}
+
+/// [`move_axis`] for the tests: the new position, or `None` when the particle left.
+#[cfg(test)]
+pub(super) fn move_for_tests(
+    pos: f64,
+    d: f64,
+    n: usize,
+    sides: (SideKind, SideKind),
+    wet: impl Fn(isize) -> bool,
+) -> Option<f64> {
+    match move_axis(pos, pos.floor() as isize, d, n, sides, wet) {
+        Moved::To(p) => Some(p),
+        Moved::Out(_) => None,
+    }
+}
