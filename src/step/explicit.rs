@@ -96,7 +96,7 @@ fn rows_per_block(nx: usize, ny: usize, threads: usize) -> usize {
 }
 
 /// Fewest cells per kernel block.
-pub(crate) const MIN_BLOCK_CELLS: usize = 8192;
+const MIN_BLOCK_CELLS: usize = 8192;
 
 /// Explicit SSP Runge–Kutta stepper with its scratch.
 #[derive(Debug)]

@@ -15,9 +15,10 @@
 //! depth cancels and the kernel works in concentration units, as fast as before.
 //!
 //! When the grid's arrays outgrow the cache ([`pieced`]), rows are swept in pieces of [`PIECE`]
-//! cells, x-faces and update together, and while a piece is computed the inputs the next row needs for the same
-//! piece are prefetched into L2, so memory is read at an even pace rather than in bursts that
-//! the hardware prefetcher restarts at every page. The arithmetic is the same, bit for bit.
+//! cells, x-faces and update together, and while a piece is computed the inputs the next row
+//! needs for the same piece are prefetched into L2, so memory is read at an even pace rather
+//! than in bursts that the hardware prefetcher restarts at every page. The arithmetic is the
+//! same, bit for bit.
 
 use crate::field::Neumaier;
 use crate::model::Model;
