@@ -17,6 +17,9 @@ struct Cli {
 enum Command {
     /// Run a scenario and write frames, logs, fields and a summary to `<dir>/<name>/`.
     Run(cli::run::RunArgs),
+    /// Follow the scenario's releases with random-walk particles (no numerical diffusion) and
+    /// compare with the grid run at each receptor; files in `<dir>/<name>/particles/`.
+    Particles(cli::particles::ParticlesArgs),
     /// Regime report without time marching: Peclet and Courant maps, stable steps, numerical
     /// diffusion, advice; writes `<dir>/<name>/check/`.
     Check(cli::check::CheckArgs),
@@ -43,6 +46,7 @@ enum Command {
 fn main() -> ExitCode {
     let result = match Cli::parse().command {
         Command::Run(a) => cli::run::main(a),
+        Command::Particles(a) => cli::particles::main(a),
         Command::Check(a) => cli::check::main(a),
         Command::Example(a) => cli::example::main(a),
         Command::Bench(a) => cli::bench::main(a),

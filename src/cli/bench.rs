@@ -59,6 +59,11 @@ pub struct BenchArgs {
     /// 200 x 100 grid in a temporary folder and gather them `--reps` times (default 3).
     #[arg(long, value_name = "MEMBERS")]
     gather: Option<usize>,
+    /// Instead, time the particle stepper: this many particles started uniformly over the
+    /// built-in 200 x 100 tidal basin with an island and decay, 200 steps of 10 s, `--reps`
+    /// times (default 5); prints each rate and the median in particle steps per second.
+    #[arg(long, value_name = "COUNT")]
+    particles: Option<usize>,
 }
 
 /// Runs `tinct bench`.
@@ -78,6 +83,7 @@ pub fn main(a: BenchArgs) -> Result<(), Failure> {
         scenario,
         peer,
         gather,
+        particles,
     } = a;
     let all_schemes = schemes.iter().any(|n| n == "all");
     let schemes = parse_schemes(&schemes)?;
@@ -86,6 +92,9 @@ pub fn main(a: BenchArgs) -> Result<(), Failure> {
             .num_threads(t)
             .build_global()
             .map_err(|e| bad_input(format!("--threads: {e}")))?;
+    }
+    if let Some(count) = particles {
+        return particle_bench(count, reps.unwrap_or(5));
     }
     if let Some(members) = gather {
         return gather_bench(members, reps.unwrap_or(3));
@@ -323,6 +332,30 @@ fn gather_bench(members: usize, reps: usize) -> Result<(), Failure> {
             .collect::<Vec<_>>()
             .join(", "),
         r.median()
+    );
+    Ok(())
+}
+
+/// `tinct bench --particles COUNT`: particle steps per second, median of `reps`.
+fn particle_bench(count: usize, reps: usize) -> Result<(), Failure> {
+    if count == 0 {
+        return Err(bad_input("--particles: at least 1"));
+    }
+    println!(
+        "particle steps, {count} particles on a 200 x 100 tidal basin with an island and decay, 200 steps of 10 s; {} thread(s), {} bytes a particle",
+        rayon::current_num_threads(),
+        tinct::particles::BYTES_PER_PARTICLE
+    );
+    let mut rates = Vec::new();
+    for r in 0..reps.max(1) {
+        let rate = tinct::particles::bench::particle_steps_per_second(count, 200, 1 + r as u64)
+            .map_err(|e| failed(e.to_string()))?;
+        println!("  round {}: {:.1} M particle steps/s", r + 1, rate / 1e6);
+        rates.push(rate);
+    }
+    println!(
+        "median: {:.1} M particle steps/s",
+        tinct::run::cost::median(&rates) / 1e6
     );
     Ok(())
 }

@@ -10,7 +10,7 @@ use crate::model::Model;
 use crate::step::{scheme_warnings, Scheme, TimeScheme};
 
 /// How much an item matters.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, serde::Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, serde::Serialize, serde::Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum Severity {
     /// Worth knowing; the run is fine as written.
@@ -33,7 +33,7 @@ impl Severity {
 }
 
 /// One piece of advice.
-#[derive(Debug, Clone, PartialEq, Eq, serde::Serialize)]
+#[derive(Debug, Clone, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
 pub struct Advice {
     /// How much it matters.
     pub severity: Severity,

@@ -6,7 +6,7 @@
 //! Estuaries: A Physical Introduction, from memory).
 
 /// Flushing figures of a run.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Flushing {
     /// Time for the mass remaining to fall to 1/e of the start, s (`None` if not reached).
     pub e_folding_time: Option<f64>,

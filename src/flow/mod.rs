@@ -179,7 +179,7 @@ impl FlowSpec {
 }
 
 /// Facts about a flow for `check` and `summary.json`.
-#[derive(Debug, Clone, Default, PartialEq, serde::Serialize)]
+#[derive(Debug, Clone, Default, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct FlowReport {
     /// Largest cell's net discharge over the largest face discharge before any projection
     /// (0 for divergence-free fields).

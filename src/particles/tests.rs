@@ -267,3 +267,38 @@ fn a_move_mirrors_at_land_wraps_at_periodic_sides_and_leaves_through_open_ones()
 fn walk_move(pos: f64, d: f64, n: usize, sides: (SideKind, SideKind), wet: impl Fn(isize) -> bool) -> Option<f64> {
     walk::move_for_tests(pos, d, n, sides, wet)
 }
+
+#[test]
+fn a_uniform_tracer_stays_uniform_in_a_divergence_free_flow() {
+    // Incompressibility: a divergence-free flow keeps a uniform concentration uniform
+    // (Liouville; common practice). Each velocity component is linear along its own axis
+    // inside a cell (Pollock 1988; from memory), so the particle flow has the grid flow's
+    // zero divergence in every cell; a blend across rows would not. The steady vortex fills a
+    // walled basin (its normal velocity is zero on the sides), no diffusion.
+    let grid = Grid::new(32, 32, 10.0, 10.0, 0.0, 0.0).unwrap();
+    let model = Model::new(ModelSpec {
+        grid,
+        mask: None,
+        depth: 2.0.into(),
+        kx: 0.0,
+        ky: 0.0,
+        decay_rate: 0.0,
+        flow: FlowSpec::steady(crate::flow::FlowKind::Vortex { speed: 0.5 }),
+        boundaries: Boundaries::walls(),
+        sources: vec![],
+    })
+    .unwrap();
+    let c0 = model.field_from(|_, _| 1.0);
+    let n = 102_400;
+    let mut s = ParticleStepper::new(&model, c0.view(), config(n, 9)).unwrap();
+    // 400 steps of 4 s: at most 0.2 cells a step, about two turns of the outer ring.
+    for _ in 0..400 {
+        s.step(4.0);
+    }
+    let tally = s.tally();
+    let expect = n as f64 / 1024.0;
+    let chi2: f64 = tally.count.iter().map(|&c| (c as f64 - expect).powi(2) / expect).sum();
+    // 1023 degrees of freedom: mean 1023, standard deviation sqrt(2 * 1023) = 45; allow the
+    // mean plus five standard deviations (normal approximation of chi-square, common practice).
+    assert!(chi2 < 1023.0 + 5.0 * 45.2, "chi2 = {chi2}");
+}

@@ -3,10 +3,12 @@
 //! open ones.
 //!
 //! Velocity at a point of cell (i, j) with fractions (ax, ay) across it: `u` is linear in x
-//! between the cell's west and east faces, and linear in y between that row and the
-//! neighbouring row on the point's side of the cell centre (the cell's own row when the
-//! neighbour is land or beyond a side, a free-slip wall); `v` likewise with the axes swapped.
-//! With a depth field, face transports are divided by the face depth at the step's level.
+//! between the cell's west and east faces and `v` linear in y between its south and north faces
+//! (the C-grid interpolation of Pollock 1988, from memory), so the particle flow has, in every
+//! cell, exactly the grid flow's discrete divergence: none where the grid flow has none, and
+//! it never crosses a closed face. With a depth field the face transports are interpolated and
+//! divided by the depth interpolated between the same faces at the step's level, so that
+//! `div(h u)` is the transports' divergence.
 //!
 //! Drift `K (dh/dx) / h` per axis (K constant per axis): the depth is taken linear across the
 //! cell between its face depths, so its gradient is the face difference over the cell width.
@@ -25,31 +27,27 @@ use rand_xoshiro::Xoshiro256PlusPlus;
 /// Reflections tried within one axis of one step before the particle is held in place.
 pub(crate) const MAX_BOUNCES: usize = 4;
 
-/// Face velocities (m/s, padded layout) at time `t` into `u`, `v`; `dt` gives the rate of rise
-/// of a tidal level over the step.
+/// Face values (padded layout) at the middle of the step from `t` to `t + dt` into `u`, `v`:
+/// velocities in m/s, or transports in m2/s when the flow is given as transports over a depth
+/// field, with the tidal level rising at its mean rate over the step.
 pub(super) fn velocities_at(m: &Model, t: f64, dt: f64, u: &mut [f64], v: &mut [f64]) {
     let f = &m.flow;
+    let mid = t + 0.5 * dt;
     if f.has_fill() {
         let rate = if dt > 0.0 {
             (f.level(t + dt) - f.level(t)) / dt
         } else {
             0.0
         };
-        f.faces_at(t, rate, u, v);
+        f.faces_at(mid, rate, u, v);
     } else {
-        let k = f.factor(t);
+        let k = f.factor(mid);
         for (o, b) in u.iter_mut().zip(&f.u) {
             *o = k * b;
         }
         for (o, b) in v.iter_mut().zip(&f.v) {
             *o = k * b;
         }
-    }
-    if let (true, Some(d)) = (f.is_transport(), &m.depth_field) {
-        let eta = f.level(t);
-        let per_depth = |q: &mut f64, h: f64| *q = if h + eta > 0.0 { *q / (h + eta) } else { 0.0 };
-        u.iter_mut().zip(&d.fx).for_each(|(q, &h)| per_depth(q, h));
-        v.iter_mut().zip(&d.fy).for_each(|(q, &h)| per_depth(q, h));
     }
 }
 
@@ -85,6 +83,9 @@ pub(super) struct StepContext<'a> {
     v: &'a [f64],
     /// Face depths at the step's level, when the depth varies and the drift is on.
     depth: Option<(&'a [f64], &'a [f64], f64)>,
+    /// Face depths and level that turn face transports into velocities, when the flow is given
+    /// as transports over a depth field.
+    per_depth: Option<(&'a [f64], &'a [f64], f64)>,
     kx: f64,
     ky: f64,
     /// Standard deviations of the walk per axis in cell units.
@@ -117,6 +118,11 @@ impl<'a> StepContext<'a> {
                 .as_ref()
                 .filter(|_| drift)
                 .map(|d| (&d.fx[..], &d.fy[..], m.flow.level(t))),
+            per_depth: m
+                .depth_field
+                .as_ref()
+                .filter(|_| m.flow.is_transport())
+                .map(|d| (&d.fx[..], &d.fy[..], m.flow.level(t + 0.5 * dt))),
             kx: m.kx,
             ky: m.ky,
             sx: (2.0 * m.kx * dt).sqrt() / g.dx,
@@ -145,19 +151,20 @@ impl<'a> StepContext<'a> {
         rng: &mut Xoshiro256PlusPlus,
     ) -> ChunkTally {
         let mut tally = ChunkTally::default();
+        let mut decayed = crate::field::Neumaier::default();
         for ((x, y), m) in xs.iter_mut().zip(ys.iter_mut()).zip(ms.iter_mut()) {
             if x.is_nan() {
                 continue;
             }
             let before = *m;
             *m *= self.decay;
-            tally.decayed += before - *m;
+            decayed.add(before - *m);
             let gx = (*x - self.x0) * self.inv_dx;
             let gy = (*y - self.y0) * self.inv_dy;
             let i = floor(gx).clamp(0, self.nx as isize - 1);
             let j = floor(gy).clamp(0, self.ny as isize - 1);
             let (ax, ay) = (gx - i as f64, gy - j as f64);
-            let (vu, vv) = self.velocity(i, j, ax, ay);
+            let (vu, vv) = self.midpoint_velocity(gx, gy, i, j, ax, ay);
             let (du, dv) = self.drift(i, j, ax, ay);
             let (rx, ry): (f64, f64) = if self.sx > 0.0 || self.sy > 0.0 {
                 (rng.sample(StandardNormal), rng.sample(StandardNormal))
@@ -187,40 +194,46 @@ impl<'a> StepContext<'a> {
                 }
             }
         }
+        tally.decayed = decayed.value();
         tally
     }
 
-    /// Interpolated velocity (m/s) at fractions (ax, ay) of cell (i, j).
+    /// The flow's velocity for the step by the midpoint rule (second order in time): the
+    /// velocity where half a step of the velocity at the start position leads, at the step's
+    /// middle time; the start velocity when that point is on land or beyond a side.
+    #[inline]
+    fn midpoint_velocity(&self, gx: f64, gy: f64, i: isize, j: isize, ax: f64, ay: f64) -> (f64, f64) {
+        let (u1, v1) = self.velocity(i, j, ax, ay);
+        let mx = gx + 0.5 * u1 * self.dt * self.inv_dx;
+        let my = gy + 0.5 * v1 * self.dt * self.inv_dy;
+        let (im, jm) = (floor(mx), floor(my));
+        if im < 0 || jm < 0 || im >= self.nx as isize || jm >= self.ny as isize || !self.is_wet(im, jm) {
+            return (u1, v1);
+        }
+        self.velocity(im, jm, mx - im as f64, my - jm as f64)
+    }
+
+    /// Velocity (m/s) at fractions (ax, ay) of cell (i, j): each component linear along its
+    /// own axis between the cell's two faces (with a depth field, the transport is linear and
+    /// divided by the depth, linear between the same faces), so `div(h u)` inside the cell is
+    /// the grid's discrete divergence of the cell.
     #[inline]
     fn velocity(&self, i: isize, j: isize, ax: f64, ay: f64) -> (f64, f64) {
         let s = self.stride;
         let p = self.idx(i, j);
-        let u_row = |q: usize| (1.0 - ax) * self.u[q] + ax * self.u[q + 1];
-        let v_col = |q: usize| (1.0 - ay) * self.v[q] + ay * self.v[q + s];
-        // Neighbouring row (for u) and column (for v) on the point's side of the centre.
-        let (jn, wy) = if ay >= 0.5 {
-            (j + 1, ay - 0.5)
-        } else {
-            (j - 1, 0.5 - ay)
-        };
-        let (in_, wx) = if ax >= 0.5 {
-            (i + 1, ax - 0.5)
-        } else {
-            (i - 1, 0.5 - ax)
-        };
-        let own_u = u_row(p);
-        let u = if (0..self.ny as isize).contains(&jn) && self.is_wet(i, jn) {
-            (1.0 - wy) * own_u + wy * u_row(self.idx(i, jn))
-        } else {
-            own_u
-        };
-        let own_v = v_col(p);
-        let v = if (0..self.nx as isize).contains(&in_) && self.is_wet(in_, j) {
-            (1.0 - wx) * own_v + wx * v_col(self.idx(in_, j))
-        } else {
-            own_v
-        };
-        (u, v)
+        let qu = self.u[p] + ax * (self.u[p + 1] - self.u[p]);
+        let qv = self.v[p] + ay * (self.v[p + s] - self.v[p]);
+        match self.per_depth {
+            None => (qu, qv),
+            Some((fx, fy, eta)) => {
+                let hx = fx[p] + eta + ax * (fx[p + 1] - fx[p]);
+                let hy = fy[p] + eta + ay * (fy[p + s] - fy[p]);
+                (
+                    if hx > 0.0 { qu / hx } else { 0.0 },
+                    if hy > 0.0 { qv / hy } else { 0.0 },
+                )
+            }
+        }
     }
 
     /// Drift `K (dh/dx) / h`, `K (dh/dy) / h` (m/s) at fractions (ax, ay) of cell (i, j).

@@ -12,6 +12,7 @@
 //! - [`studies`]: [`write_compare_report`] and [`write_converge_report`].
 //! - `scenario` (private): the scenario in words.
 
+pub mod particles;
 pub mod run;
 mod scenario;
 pub mod studies;
@@ -247,9 +248,13 @@ pub(crate) fn facts(items: &[(&str, String)]) -> String {
 }
 
 /// The list of files of a folder: names that are plain relative paths become relative links,
-/// anything else is plain text. Frames `frames/NNNNN.png` are folded into one line.
+/// anything else is plain text. Frames `frames/NNNNN.png` (and `<sub>/frames/NNNNN.png`) are
+/// folded into one line per folder.
 pub(crate) fn file_list(files: &[String]) -> String {
-    let frames: Vec<&String> = files.iter().filter(|f| f.starts_with("frames/")).collect();
+    let folder_of = |f: &str| -> Option<String> {
+        let (dir, _) = f.rsplit_once('/')?;
+        (dir == "frames" || dir.ends_with("/frames")).then(|| dir.to_string())
+    };
     let mut o = String::from("<ul class=\"files\">");
     let link = |f: &str| {
         let safe = !f.is_empty() && !f.contains(':') && !f.starts_with('/') && !f.starts_with('\\');
@@ -259,27 +264,32 @@ pub(crate) fn file_list(files: &[String]) -> String {
             format!("<li>{}</li>", esc(f))
         }
     };
-    let mut frames_done = false;
+    let mut folded: Vec<String> = Vec::new();
     for f in files {
-        if f.starts_with("frames/") {
-            if !frames_done {
-                frames_done = true;
-                match (frames.first(), frames.last()) {
-                    (Some(a), Some(b)) if frames.len() > 2 => {
-                        let _ = write!(
-                            o,
-                            "<li><a href=\"{0}\">{0}</a> … <a href=\"{1}\">{1}</a> ({2} frames)</li>",
-                            esc(a),
-                            esc(b),
-                            frames.len()
-                        );
-                    }
-                    _ => frames.iter().for_each(|f| o.push_str(&link(f))),
-                }
-            }
+        let Some(dir) = folder_of(f) else {
+            o.push_str(&link(f));
+            continue;
+        };
+        if folded.contains(&dir) {
             continue;
         }
-        o.push_str(&link(f));
+        let frames: Vec<&String> = files
+            .iter()
+            .filter(|g| folder_of(g).as_deref() == Some(dir.as_str()))
+            .collect();
+        match (frames.first(), frames.last()) {
+            (Some(a), Some(b)) if frames.len() > 2 => {
+                let _ = write!(
+                    o,
+                    "<li><a href=\"{0}\">{0}</a> … <a href=\"{1}\">{1}</a> ({2} frames)</li>",
+                    esc(a),
+                    esc(b),
+                    frames.len()
+                );
+            }
+            _ => frames.iter().for_each(|f| o.push_str(&link(f))),
+        }
+        folded.push(dir);
     }
     o.push_str("</ul>\n");
     o

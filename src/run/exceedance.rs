@@ -18,7 +18,7 @@ pub struct Threshold {
 }
 
 /// What `summary.json` and the closing table report per threshold.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct ExceedanceFigure {
     /// Concentration, tracer units.
     pub threshold: f64,

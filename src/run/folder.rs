@@ -120,6 +120,9 @@ pub fn prepare_folder(dir: &Path, resume: bool) -> Result<(), OutputError> {
         })?;
     }
     remove_matching(&dir.join("plots"), |n| n.ends_with(".png"))?;
+    if !resume {
+        super::particles::clear_folder(dir)?;
+    }
     for d in [dir.to_path_buf(), frames, dir.join("plots")] {
         remove_matching(&d, |n| stale_temporary(n).is_some())?;
     }

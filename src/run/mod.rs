@@ -14,6 +14,7 @@ pub mod folder;
 pub mod frames;
 pub mod logs;
 pub mod markers;
+pub mod particles;
 pub mod plots;
 pub mod receptors;
 pub mod summary;
@@ -437,6 +438,23 @@ pub fn execute_with(
         );
         checkpoint::write(&ck_path, &ck).map_err(fail)?;
     }
+    // The particle run beside (`run.particles`), once the grid run has completed.
+    let particle_run = match scn.run.particles {
+        Some(n) if failure.is_none() && !interrupted => {
+            let stop = options.stop.as_deref();
+            let dt = crate::particles::march::particle_dt(&sim.model, end);
+            let mut step = 0;
+            let mut tell = |t: f64| {
+                step += 1;
+                progress(Progress { t, end, step, dt });
+            };
+            let (run, wall) = particles::march_particles(scn, &sim.model, n, particles::DEFAULT_SEED, stop, &mut tell)
+                .map_err(|e| fail(OutputError::invalid(dir.join(particles::FOLDER), e.to_string())))?;
+            interrupted = run.interrupted;
+            Some((run, wall))
+        }
+        _ => None,
+    };
     // Logs, fields and pictures: written whether or not the run completed.
     let finish = || -> Result<(RunSummary, Result<(), OutputError>), OutputError> {
         let writing = Instant::now();
@@ -493,7 +511,18 @@ pub fn execute_with(
         }
         if interrupted && failure.is_none() {
             summary.status = "interrupted".into();
-            summary.error = Some(format!("interrupted by a signal at t = {} s", sim.state.t));
+            summary.error = Some(match &particle_run {
+                Some((p, _)) => format!(
+                    "interrupted by a signal during the particle run, at its t = {} s (the grid run completed)",
+                    p.times.last().copied().unwrap_or(0.0)
+                ),
+                None => format!("interrupted by a signal at t = {} s", sim.state.t),
+            });
+        }
+        if let Some((run, wall)) = &particle_run {
+            let p = particles::write_particle_outputs(&dir, scn, &sim.model, run, &receptors, *wall)?;
+            summary.files.extend(p.files.iter().cloned());
+            summary.particles = Some(p);
         }
         // Charts and the report; summary.json is written even when they fail.
         let extras = Instant::now();

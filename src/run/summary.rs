@@ -14,7 +14,7 @@ use crate::RunError;
 use ndarray::ArrayView2;
 
 /// The numerical choices as run.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct SchemeFacts {
     /// Convection scheme name.
     pub convection: String,
@@ -38,7 +38,7 @@ pub struct SchemeFacts {
 /// The plume's effective diffusivity, measured from the growth of its second moments between
 /// two frames (for a single release the variance grows as `2 K t` along each axis; Taylor 1921,
 /// common practice), beside the physical one. It includes the scheme's numerical diffusion.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct EffectiveDiffusivity {
     /// Measured along x, m2/s.
     pub kx: f64,
@@ -188,7 +188,7 @@ impl PlumeTrack {
 }
 
 /// What crossed one side over the run.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct SideBudget {
     /// `west`, `east`, `south` or `north`.
     pub side: String,
@@ -201,7 +201,7 @@ pub struct SideBudget {
 }
 
 /// Everything `summary.json` holds.
-#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct RunSummary {
     /// Program and version.
     pub program: String,
@@ -282,6 +282,10 @@ pub struct RunSummary {
     pub exceedance: Vec<super::exceedance::ExceedanceFigure>,
     /// Files of the run, relative to its folder.
     pub files: Vec<String>,
+    /// The particle run beside the grid run and its comparison (`run.particles` or `tinct
+    /// particles` on a completed run), else absent.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub particles: Option<super::particles::ParticleSummary>,
     /// The caution that goes with every result.
     pub caution: String,
 }
@@ -395,6 +399,7 @@ impl RunSummary {
             receptors: receptors.to_vec(),
             exceedance: Vec::new(),
             files,
+            particles: None,
             caution: super::CAUTION.into(),
         }
     }

@@ -74,6 +74,9 @@ pub struct RunSettings {
     /// Simulated seconds between checkpoints (`checkpoint.bin`); `None` = about every 60 s of
     /// wall time. A checkpoint is always written at the end and on interruption.
     pub checkpoint_every: Option<f64>,
+    /// Particles of a random-walk particle run beside the grid run (`<dir>/<name>/particles/`);
+    /// `None` = no particle run.
+    pub particles: Option<usize>,
 }
 
 /// `[[receptor]]`: a point where the concentration is recorded.

@@ -201,6 +201,10 @@ pub(super) fn write(s: &Scenario) -> String {
         Some(c) => line(format!("checkpoint_every = {}", num(c))),
         None => line("# checkpoint_every: about every 60 s of wall time".into()),
     }
+    match s.run.particles {
+        Some(n) => line(format!("particles = {n}")),
+        None => line("# particles: no particle run beside (tinct particles runs one alone)".into()),
+    }
     line(String::new());
     line("[output]".into());
     line(format!("dir = {}", text(&s.output.dir.to_string_lossy())));

@@ -53,7 +53,7 @@ pub(super) const SCHEME: &[&str] = &[
     "max_iterations",
 ];
 /// `[run]` keys.
-pub(super) const RUN: &[&str] = &["end", "frames", "log_every", "checkpoint_every"];
+pub(super) const RUN: &[&str] = &["end", "frames", "log_every", "checkpoint_every", "particles"];
 /// `[output]` keys.
 pub(super) const OUTPUT: &[&str] = &["dir", "colour", "range", "animation"];
 

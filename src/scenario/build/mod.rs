@@ -37,6 +37,8 @@ use toml::{Table, Value};
 pub(super) const MAX_SIDE: i64 = 1 << 20;
 /// Largest accepted `run.frames`.
 pub(super) const MAX_FRAMES: i64 = 10_000;
+/// Most particles of a particle run (32 bytes each: 1.6 GB).
+pub(super) const MAX_PARTICLES: i64 = 50_000_000;
 
 /// The grid section resolved.
 struct GridOut {

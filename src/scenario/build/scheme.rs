@@ -3,7 +3,7 @@
 
 use super::super::reader::{check, suggestion, Problems, Section};
 use super::super::{OutputSettings, RunSettings};
-use super::{optional_table, positive, required_table, MAX_FRAMES, OUTPUT, RUN, SCHEME};
+use super::{optional_table, positive, required_table, MAX_FRAMES, MAX_PARTICLES, OUTPUT, RUN, SCHEME};
 use crate::diagnostics::advice::sig;
 use crate::ops::limiter::Limiter;
 use crate::output::colour::ColourScale;
@@ -135,12 +135,21 @@ pub(super) fn run_section(root: Section, p: &mut Problems) -> Option<RunSettings
     } else {
         None
     };
+    let particles = if s.has("particles") {
+        Some(s.int("particles", 1, MAX_PARTICLES, p))
+    } else {
+        None
+    };
     Some(RunSettings {
         end: end?,
         frames: usize::try_from(frames?).ok()?,
         log_every: u64::try_from(log_every?).ok()?,
         checkpoint_every: match checkpoint_every {
             Some(v) => Some(v?),
+            None => None,
+        },
+        particles: match particles {
+            Some(n) => Some(usize::try_from(n?).ok()?),
             None => None,
         },
     })
