@@ -113,6 +113,10 @@ pub struct ParticleStepper<'m> {
     /// Face velocities (m/s, padded) at the current step's time.
     u: Vec<f64>,
     v: Vec<f64>,
+    /// Face velocities (m/s) for the midpoint rule's predictor: the face transports over the
+    /// face depths when the flow is given as transports, else unused.
+    pu: Vec<f64>,
+    pv: Vec<f64>,
 }
 
 impl<'m> ParticleStepper<'m> {
@@ -151,6 +155,8 @@ impl<'m> ParticleStepper<'m> {
             drift: true,
             u: vec![0.0; padded],
             v: vec![0.0; padded],
+            pu: vec![0.0; padded],
+            pv: vec![0.0; padded],
         };
         s.release_until(config.t0);
         Ok(s)
@@ -212,7 +218,13 @@ impl<'m> ParticleStepper<'m> {
         let t = self.t;
         self.release_until(t + dt);
         walk::velocities_at(self.model, t, dt, &mut self.u, &mut self.v);
-        let ctx = walk::StepContext::new(self.model, t, dt, self.drift, &self.u, &self.v);
+        let predictor = walk::predictor_velocities(self.model, t, dt, &self.u, &self.v, &mut self.pu, &mut self.pv);
+        let (pu, pv) = if predictor {
+            (&self.pu[..], &self.pv[..])
+        } else {
+            (&self.u[..], &self.v[..])
+        };
+        let ctx = walk::StepContext::new(self.model, t, dt, self.drift, (&self.u, &self.v), (pu, pv));
         let n = self.released;
         let p = &mut self.particles;
         let tallies: Vec<walk::ChunkTally> = p.x[..n]
