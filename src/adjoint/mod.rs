@@ -25,6 +25,7 @@
 //! Numerics only: no printing, no files.
 
 pub mod bench;
+pub mod files;
 pub mod rank;
 mod reverse;
 #[cfg(test)]
