@@ -293,6 +293,19 @@ fn command_line_writes_the_maps_and_refuses_bad_input() {
         serde_json::from_str(&std::fs::read_to_string(dir.join("influence.json")).unwrap()).unwrap();
     assert_eq!(json["adjoint"], "continuous adjoint, van_leer");
     assert!(json["caution"].as_str().unwrap().contains("Screening"));
+    // The run report's section, built from these files.
+    let html = tinct::report::influence::section(&tmp.path().join("o/gaussian-puff"));
+    for want in [
+        "Influence maps",
+        "swimming-area",
+        "continuous adjoint, van_leer",
+        "storm-overflow",
+        "data:image/png;base64,",
+        "Screening",
+    ] {
+        assert!(html.contains(want), "{want}");
+    }
+    assert_eq!(tinct::report::influence::section(tmp.path()), "");
     let bad = tinct(&["influence", scn, "--receptor", "nowhere", "--out", "o"], tmp.path());
     assert_eq!(bad.status.code(), Some(2));
     let err = String::from_utf8_lossy(&bad.stderr);

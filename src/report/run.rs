@@ -441,6 +441,7 @@ fn run_html(dir: &Path, scn: &Scenario, s: &RunSummary) -> String {
         b.push_str("<h2>Receptors</h2>\n");
         b.push_str(&receptor_table(s, units));
     }
+    b.push_str(&super::influence::section(dir));
 
     b.push_str("<h2>Pictures</h2>\n");
     let plots = dir.join("plots");
