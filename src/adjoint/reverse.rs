@@ -82,7 +82,7 @@ pub(crate) fn march(
     let end = steps.last().map_or(0.0, |s| s.t1);
     let rm = reversed_model(model, receptor, window, end)?;
     let zero = rm.zero_field();
-    let mut sim = Simulation::new(rm, scheme.clone(), &zero)?;
+    let mut sim = Simulation::new(rm, *scheme, &zero)?;
     let mut next = releases.len();
     for s in steps.iter().rev() {
         sim.state.t = end - s.t1;
