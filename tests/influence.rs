@@ -340,33 +340,23 @@ fn bad_candidates_are_refused() {
     assert!(e.contains("m.toml"), "{e}");
 }
 
-/// Implicit time stepping (backward Euler, upwind) uses the continuous adjoint: it still
-/// agrees with forward runs from five random release points, to the discretisation error
-/// (measured when this was written; the bound is the 2%).
+/// Implicit time stepping is refused as bad input naming `scheme.time` and the allowed value
+/// (the continuous adjoint with implicit upwind missed forward doses by 21% on the puff at
+/// Courant 1 when measured; the transposed implicit solve is not built).
 #[test]
-fn implicit_runs_use_the_continuous_adjoint() {
+fn implicit_runs_are_refused() {
     let scn = scenario(
         "gaussian-puff.toml",
         &[
             "scheme.convection=\"upwind\"",
             "scheme.time=\"implicit\"",
+            "scheme.courant=1.0",
             "run.end=1800",
         ],
     );
-    assert_eq!(
-        adjoint::AdjointKind::for_scheme(&scn.scheme).label(),
-        "continuous adjoint, upwind (implicit)"
-    );
-    let worst = duality(
-        &scn,
-        0,
-        Window::Span {
-            start: 0.0,
-            end: 1800.0,
-        },
-        0.0,
-        3,
-    );
-    eprintln!("implicit upwind duality on gaussian-puff: largest relative difference {worst:.4}");
-    assert!(worst < 0.02, "{worst}");
+    let model = scn.build_model().unwrap();
+    let e = adjoint::influence(&model, &scn.scheme, scn.receptors[0].at, Window::At(900.0), &[0.0]).unwrap_err();
+    assert!(matches!(e, adjoint::AdjointError::Input(_)));
+    let msg = e.to_string();
+    assert!(msg.contains("scheme.time") && msg.contains("explicit"), "{msg}");
 }

@@ -18,9 +18,13 @@
 //! - explicit time stepping with a linear convection scheme (upwind, central, QUICK): the
 //!   exact discrete transpose of the forward step ([`transpose`]), so the duality
 //!   `<A x, y> = <x, A^T y>` holds to round-off;
-//! - the limited schemes, the Peclet-switched schemes and the implicit time schemes: the
-//!   continuous adjoint discretised with the run's own scheme ([`reverse`]), the forward solver
-//!   on the reversed problem; duality holds to the discretisation error (measured in the tests).
+//! - the limited schemes and the Peclet-switched schemes: the continuous adjoint discretised
+//!   with the run's own scheme ([`reverse`]), the forward solver on the reversed problem;
+//!   duality holds to the discretisation error (measured in the tests).
+//!
+//! Implicit, Crank–Nicolson and IMEX time stepping are refused (bad input): the continuous
+//! adjoint with implicit upwind missed forward doses by 21% on the puff, and the transposed
+//! implicit solve is not built.
 //!
 //! Numerics only: no printing, no files.
 
@@ -315,6 +319,16 @@ pub fn influence(
     window: Window,
     release_times: &[f64],
 ) -> Result<Influence, AdjointError> {
+    if scheme.time != TimeScheme::Explicit {
+        // Measured: the continuous adjoint with implicit upwind missed forward doses by 21% on
+        // the puff (Courant 1); the transposed implicit solve is not built yet.
+        return Err(invalid(
+            "scheme.time",
+            scheme.time.name(),
+            "\"explicit\" for influence maps (the implicit, Crank-Nicolson and IMEX adjoints are not built; use --set scheme.time=\"explicit\")",
+        )
+        .into());
+    }
     let (releases, cell) = checked(model, receptor, window, release_times)?;
     let steps = forward_steps(model, scheme, window, &releases)?;
     let kind = AdjointKind::for_scheme(scheme);
