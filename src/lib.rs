@@ -42,6 +42,7 @@
 #![allow(clippy::neg_cmp_op_on_partial_ord, clippy::manual_clamp)]
 #![warn(missing_docs)]
 
+pub mod adjoint;
 pub mod bench;
 pub mod budget;
 pub mod depth;

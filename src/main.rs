@@ -36,6 +36,10 @@ enum Command {
     Converge(cli::converge::ConvergeArgs),
     /// Grid-convergence index of three values from any code (Celik et al. 2008).
     Gci(cli::gci::GciArgs),
+    /// Influence map of a receptor from one backward (adjoint) run: the dose at the receptor
+    /// per unit mass released in each cell; ranks the `[[candidate]]` points; writes
+    /// `<dir>/<name>/influence/<receptor>/`.
+    Influence(cli::influence::InfluenceArgs),
     /// Run a sweep (an ensemble of one scenario with some keys varied): members on this machine
     /// then the gather, or scripts for a batch scheduler; writes `<dir>/<sweep name>/`.
     Sweep(cli::sweep::SweepArgs),
@@ -53,6 +57,7 @@ fn main() -> ExitCode {
         Command::Compare(a) => cli::compare::main(a),
         Command::Converge(a) => cli::converge::main(a),
         Command::Gci(a) => cli::gci::main(a),
+        Command::Influence(a) => cli::influence::main(a),
         Command::Sweep(a) => cli::sweep::main(a),
         Command::Verify(a) => cli::verify::main(a),
     };

@@ -64,6 +64,11 @@ pub struct BenchArgs {
     /// times (default 5); prints each rate and the median in particle steps per second.
     #[arg(long, value_name = "COUNT")]
     particles: Option<usize>,
+    /// Instead, time one influence map (the first receptor over the whole run, release at 0)
+    /// against one forward run of the same scenario (default `scenarios/gaussian-puff.toml`),
+    /// interleaved `--reps` times (default 3); prints the medians and their ratio.
+    #[arg(long, value_name = "SCENARIO", num_args = 0..=1, default_missing_value = "scenarios/gaussian-puff.toml")]
+    influence: Option<PathBuf>,
 }
 
 /// Runs `tinct bench`.
@@ -84,6 +89,7 @@ pub fn main(a: BenchArgs) -> Result<(), Failure> {
         peer,
         gather,
         particles,
+        influence,
     } = a;
     let all_schemes = schemes.iter().any(|n| n == "all");
     let schemes = parse_schemes(&schemes)?;
@@ -95,6 +101,9 @@ pub fn main(a: BenchArgs) -> Result<(), Failure> {
     }
     if let Some(count) = particles {
         return particle_bench(count, reps.unwrap_or(5));
+    }
+    if let Some(path) = influence {
+        return influence_bench(&path, reps.unwrap_or(3));
     }
     if let Some(members) = gather {
         return gather_bench(members, reps.unwrap_or(3));
@@ -358,4 +367,46 @@ fn particle_bench(count: usize, reps: usize) -> Result<(), Failure> {
         tinct::run::cost::median(&rates) / 1e6
     );
     Ok(())
+}
+
+/// `tinct bench --influence`: one influence map against one forward run, interleaved.
+fn influence_bench(path: &std::path::Path, reps: usize) -> Result<(), Failure> {
+    let scn = tinct::scenario::load(path, &[]).map_err(|e| bad_input(e.to_string()))?;
+    let tmp = tempfile_dir()?;
+    let b = tinct::adjoint::bench::influence_vs_forward(&scn, &tmp, reps.max(3)).map_err(super::failed);
+    let _ = std::fs::remove_dir_all(&tmp);
+    let b = b?;
+    use tinct::adjoint::bench::median;
+    println!(
+        "{}: influence map ({}, {} steps) against a forward run (every output), {} interleaved reps, {} thread(s)",
+        scn.name,
+        b.kind.label(),
+        b.steps,
+        b.forward.len(),
+        rayon::current_num_threads()
+    );
+    let list = |xs: &[f64]| xs.iter().map(|x| format!("{x:.3}")).collect::<Vec<_>>().join(", ");
+    println!(
+        "  forward run   s: {}  median {:.3}",
+        list(&b.forward),
+        median(&b.forward)
+    );
+    println!(
+        "  influence map s: {}  median {:.3}",
+        list(&b.influence),
+        median(&b.influence)
+    );
+    println!(
+        "  ratio influence / forward: {:.3} (ratio of medians), {:.3} (median of per-rep ratios); target <= 1.2",
+        median(&b.influence) / median(&b.forward),
+        b.median_ratio()
+    );
+    Ok(())
+}
+
+/// A fresh folder under the system's temporary directory for the forward runs.
+fn tempfile_dir() -> Result<PathBuf, Failure> {
+    let d = std::env::temp_dir().join(format!("tinct-bench-influence-{}", std::process::id()));
+    std::fs::create_dir_all(&d).map_err(|e| super::failed(format!("{}: {e}", d.display())))?;
+    Ok(d)
 }

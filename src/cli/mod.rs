@@ -8,6 +8,7 @@ pub mod compare;
 pub mod converge;
 pub mod example;
 pub mod gci;
+pub mod influence;
 pub mod particles;
 pub mod run;
 pub mod sweep;

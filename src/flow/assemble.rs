@@ -161,6 +161,7 @@ impl Flow {
             v,
             fill,
             records,
+            reverse: None,
             transport,
             spec,
             max_divergence: div,

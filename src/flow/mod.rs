@@ -214,6 +214,9 @@ pub struct Flow {
     fill: Option<(Vec<f64>, Vec<f64>)>,
     /// Time records of a file flow that changes in time: (time, u, v); empty otherwise.
     records: Vec<(f64, Vec<f64>, Vec<f64>)>,
+    /// `Some(T)` for the time-reversed copy of [`Flow::reversed`]: its time `tau` is the
+    /// original's `T - tau`.
+    reverse: Option<f64>,
     transport: bool,
     spec: FlowSpec,
     max_divergence: f64,
@@ -231,6 +234,7 @@ impl Flow {
     /// `cos(2 pi t/period + phase)`.
     #[inline]
     pub fn factor(&self, t: f64) -> f64 {
+        let t = self.reverse.map_or(t, |end| end - t);
         let mut f = 1.0;
         if let FlowKind::Swirl { period, .. } = self.spec.kind {
             f *= (PI * t / period).cos();
@@ -249,6 +253,7 @@ impl Flow {
     /// The tidal level `eta(t) = amplitude sin(2 pi t/period + phase)`, m (0 without one).
     #[inline]
     pub fn level(&self, t: f64) -> f64 {
+        let t = self.reverse.map_or(t, |end| end - t);
         match self.spec.tide {
             Some(tide) if tide.amplitude > 0.0 => tide.amplitude * (2.0 * PI * t / tide.period + tide.phase).sin(),
             _ => 0.0,
@@ -273,6 +278,7 @@ impl Flow {
     pub fn faces_at(&self, t: f64, rate: f64, u: &mut [f64], v: &mut [f64]) {
         let f = self.factor(t);
         if !self.records.is_empty() {
+            let t = self.reverse.map_or(t, |end| end - t);
             let r = &self.records;
             let k = r.partition_point(|x| x.0 <= t).clamp(1, r.len() - 1);
             let (t0, t1) = (r[k - 1].0, r[k].0);
@@ -346,6 +352,31 @@ impl Flow {
     /// Divergence, discharge, speed, volume, residence and prism figures.
     pub fn report(&self) -> &FlowReport {
         &self.report
+    }
+
+    /// The flow run backward from time `end`: at time `tau` its discharge is minus this
+    /// flow's at `end - tau` and its level this flow's at `end - tau` (the base field and the
+    /// file records change sign; the filling field does not, because the level's rate of rise
+    /// changes sign with time). The flow of the adjoint problem (see `crate::adjoint`).
+    pub fn reversed(&self, end: f64) -> Flow {
+        let mut r = self.clone();
+        let neg = |x: &mut Vec<f64>| x.iter_mut().for_each(|v| *v = -*v);
+        neg(&mut r.u);
+        neg(&mut r.v);
+        for (_, u, v) in r.records.iter_mut() {
+            neg(u);
+            neg(v);
+        }
+        // Reversing a reversed flow about the same end gives the original back; about another
+        // end it would be a shift in time, which no caller needs.
+        r.reverse = match self.reverse {
+            None => Some(end),
+            Some(e) => {
+                assert!(e == end, "a reversed flow can only be reversed again about its own end");
+                None
+            }
+        };
+        r
     }
 }
 

@@ -12,6 +12,7 @@
 //! - [`studies`]: [`write_compare_report`] and [`write_converge_report`].
 //! - `scenario` (private): the scenario in words.
 
+pub mod influence;
 pub mod particles;
 pub mod run;
 mod scenario;

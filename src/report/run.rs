@@ -444,6 +444,7 @@ fn run_html(dir: &Path, scn: &Scenario, s: &RunSummary) -> String {
     if let Some(p) = &s.particles {
         b.push_str(&super::particles::section(dir, p, units));
     }
+    b.push_str(&super::influence::section(dir));
 
     b.push_str("<h2>Pictures</h2>\n");
     let plots = dir.join("plots");

@@ -122,6 +122,12 @@ pub fn prepare_folder(dir: &Path, resume: bool) -> Result<(), OutputError> {
     remove_matching(&dir.join("plots"), |n| n.ends_with(".png"))?;
     if !resume {
         super::particles::clear_folder(dir)?;
+        // Influence maps of an earlier scenario would be stale.
+        if let Ok(entries) = std::fs::read_dir(dir.join("influence")) {
+            for e in entries.flatten() {
+                remove_matching(&e.path(), |n| crate::adjoint::files::RESULT_FILES.contains(&n))?;
+            }
+        }
     }
     for d in [dir.to_path_buf(), frames, dir.join("plots")] {
         remove_matching(&d, |n| stale_temporary(n).is_some())?;
@@ -180,6 +186,35 @@ fn remove_matching(dir: &Path, pick: impl Fn(&str) -> bool) -> Result<(), Output
         }
     }
     Ok(())
+}
+
+/// The summary of the completed run of `scn` in `run_dir`, when the folder holds one: its
+/// `scenario.toml` equals `scn`'s resolved form (the `run.particles` line aside) and its
+/// `summary.json` reads back with status `completed`.
+pub fn completed_run_summary(run_dir: &Path, scn: &Scenario) -> Option<super::RunSummary> {
+    let strip = |t: &str| -> String {
+        t.lines()
+            .filter(|l| !(l.starts_with("particles =") || l.starts_with("# particles:")))
+            .collect::<Vec<_>>()
+            .join("\n")
+    };
+    let written = std::fs::read_to_string(run_dir.join("scenario.toml")).ok()?;
+    if strip(&written) != strip(&scn.resolved_toml()) {
+        return None;
+    }
+    let text = std::fs::read_to_string(run_dir.join("summary.json")).ok()?;
+    let summary: super::RunSummary = serde_json::from_str(&text).ok()?;
+    (summary.status == "completed").then_some(summary)
+}
+
+/// Rewrites `report.html` of the completed run of `scn` in `run_dir` (so that it shows what
+/// other commands added to the folder, such as influence maps); returns whether there was
+/// such a run. Call it holding the folder's lock.
+pub fn refresh_report(run_dir: &Path, scn: &Scenario) -> Result<bool, OutputError> {
+    match completed_run_summary(run_dir, scn) {
+        Some(summary) => crate::report::write_run_report(run_dir, scn, &summary).map(|_| true),
+        None => Ok(false),
+    }
 }
 
 /// `summary.json` while the run is under way (status `running`), and what it says when the run

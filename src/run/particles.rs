@@ -436,29 +436,11 @@ fn comparison_chart(scn: &Scenario, run: &ParticleRun, k: usize, name: &str, gri
     c
 }
 
-/// Whether `<run_dir>` holds a completed grid run of the same scenario as `scn` (its
-/// `scenario.toml` equals `scn`'s resolved form, the `run.particles` line aside).
-fn same_completed_run(run_dir: &Path, scn: &Scenario) -> Option<super::RunSummary> {
-    let strip = |t: &str| -> String {
-        t.lines()
-            .filter(|l| !(l.starts_with("particles =") || l.starts_with("# particles:")))
-            .collect::<Vec<_>>()
-            .join("\n")
-    };
-    let written = std::fs::read_to_string(run_dir.join("scenario.toml")).ok()?;
-    if strip(&written) != strip(&scn.resolved_toml()) {
-        return None;
-    }
-    let text = std::fs::read_to_string(run_dir.join("summary.json")).ok()?;
-    let summary: super::RunSummary = serde_json::from_str(&text).ok()?;
-    (summary.status == "completed").then_some(summary)
-}
-
 /// Adds the particle summary `p` to the grid run in `run_dir` (its `summary.json` and
 /// `report.html`) when the folder holds a completed run of the same scenario; returns whether
 /// it did. Call it holding the folder's lock.
 pub fn attach_to_run(run_dir: &Path, scn: &Scenario, p: &ParticleSummary) -> Result<bool, OutputError> {
-    let Some(mut summary) = same_completed_run(run_dir, scn) else {
+    let Some(mut summary) = super::folder::completed_run_summary(run_dir, scn) else {
         return Ok(false);
     };
     summary.files.retain(|f| !f.starts_with(&format!("{FOLDER}/")));

@@ -51,6 +51,8 @@ pub struct Scenario {
     pub run: RunSettings,
     /// Points where the concentration is recorded.
     pub receptors: Vec<Receptor>,
+    /// Candidate release points ranked by influence maps (`tinct influence`).
+    pub candidates: Vec<Candidate>,
     /// Where and how results are written.
     pub output: OutputSettings,
     /// The tracer's name and units.
@@ -88,6 +90,16 @@ pub struct Receptor {
     pub at: (f64, f64),
     /// Concentration above which time is counted, in the tracer's units.
     pub threshold: Option<f64>,
+}
+
+/// `[[candidate]]`: a candidate release point (a berth, outfall or slipway), ranked by its
+/// influence on a receptor (`tinct influence`).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Candidate {
+    /// Name (a row of `candidates.csv`).
+    pub name: String,
+    /// Position, m.
+    pub at: (f64, f64),
 }
 
 /// `[output]`: folder and colour mapping of frames.
@@ -243,6 +255,7 @@ impl PartialEq for Scenario {
             && self.scheme == o.scheme
             && self.run == o.run
             && self.receptors == o.receptors
+            && self.candidates == o.candidates
             && self.output == o.output
             && self.tracer == o.tracer
             && self.land == o.land

@@ -252,5 +252,11 @@ pub(super) fn write(s: &Scenario) -> String {
             line(format!("threshold = {}", num(t)));
         }
     }
+    for c in &s.candidates {
+        line(String::new());
+        line("[[candidate]]".into());
+        line(format!("name = {}", text(&c.name)));
+        line(format!("at = {}", pair(c.at)));
+    }
     o
 }

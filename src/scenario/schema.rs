@@ -4,7 +4,18 @@
 
 /// Top-level keys.
 pub(super) const TOP: &[&str] = &[
-    "name", "grid", "tracer", "flow", "boundary", "initial", "source", "receptor", "scheme", "run", "output",
+    "name",
+    "grid",
+    "tracer",
+    "flow",
+    "boundary",
+    "initial",
+    "source",
+    "receptor",
+    "candidate",
+    "scheme",
+    "run",
+    "output",
 ];
 /// `[grid]` keys.
 pub(super) const GRID: &[&str] = &["nx", "ny", "dx", "dy", "size", "origin", "depth", "depth_range", "land"];
@@ -41,6 +52,8 @@ pub(super) const INITIAL_ALL: &[&str] = &[
 pub(super) const SOURCE: &[&str] = &["name", "at", "mass", "rate", "start", "stop", "spread"];
 /// `[[receptor]]` keys.
 pub(super) const RECEPTOR: &[&str] = &["name", "at", "threshold"];
+/// `[[candidate]]` keys.
+pub(super) const CANDIDATE: &[&str] = &["name", "at"];
 /// `[scheme]` keys.
 pub(super) const SCHEME: &[&str] = &[
     "convection",
@@ -71,6 +84,7 @@ pub(super) fn schema(parents: &[&str]) -> Option<&'static [&'static str]> {
         ["initial"] => INITIAL_ALL,
         ["source"] => SOURCE,
         ["receptor"] => RECEPTOR,
+        ["candidate"] => CANDIDATE,
         ["scheme"] => SCHEME,
         ["run"] => RUN,
         ["output"] => OUTPUT,

@@ -5,7 +5,7 @@
 //! stepper is the SSP Runge–Kutta family of Shu & Osher (1988) with 1, 2 or 3 stages, each stage
 //! one fused sweep of the `kernel` module.
 
-mod explicit;
+pub(crate) mod explicit;
 mod implicit;
 pub(crate) mod kernel;
 mod snapshot;

@@ -72,7 +72,7 @@ pub fn points(scenario: &'static str, doc: &Table, s: &Scenario, out: &mut Vec<C
         (1e9, 1e9),
         (-1e300, 0.0),
     ];
-    for table in ["source", "receptor"] {
+    for table in ["source", "receptor", "candidate"] {
         let n = get(doc, &[Seg::Key(table.into())])
             .and_then(Value::as_array)
             .map_or(0, Vec::len);

@@ -47,6 +47,7 @@ const ZERO_OK: &[&str] = &[
     "source.at",
     "receptor.at",
     "receptor.threshold",
+    "candidate.at",
     "output.range",
 ];
 
@@ -104,7 +105,9 @@ fn required(doc: &Table, path: &[Seg]) -> Option<Vec<String>> {
     let n = norm(path);
     let yes = |keys: Vec<String>| Some(keys);
     match n.as_str() {
-        "grid.nx" | "grid.ny" | "run.end" | "source.at" | "receptor.at" | "flow.tide.period" => yes(vec![key]),
+        "grid.nx" | "grid.ny" | "run.end" | "source.at" | "receptor.at" | "candidate.at" | "flow.tide.period" => {
+            yes(vec![key])
+        }
         "flow.opening.side" | "flow.opening.from" | "flow.opening.to" => yes(vec![key]),
         "grid.dx" if get(doc, &sibling("size")).is_none() => yes(vec![key]),
         "grid.size" if get(doc, &sibling("dx")).is_none() => yes(vec![key, "grid.dx".into()]),
@@ -122,7 +125,10 @@ fn required(doc: &Table, path: &[Seg]) -> Option<Vec<String>> {
 
 /// Tables that may not be empty (their required keys), with the key the problem is filed under.
 fn must_not_be_empty(n: &str) -> bool {
-    matches!(n, "grid" | "run" | "source" | "receptor" | "flow.opening" | "flow.tide")
+    matches!(
+        n,
+        "grid" | "run" | "source" | "receptor" | "candidate" | "flow.opening" | "flow.tide"
+    )
 }
 
 fn text(doc: &Table) -> Vec<u8> {

@@ -18,7 +18,7 @@ mod tracer;
 use self::flow::{boundary_section, flow_section};
 use self::grid::grid_section;
 use self::scheme::{output_section, run_section, scheme_section};
-use self::sources::{initial_section, receptor_section, source_section};
+use self::sources::{candidate_section, initial_section, receptor_section, source_section};
 use self::tracer::tracer_section;
 use super::reader::{check, type_name, Problems, Section};
 // The allowed keys (`TOP`, `GRID`, ... and `schema`), shared with the `--set` overrides.
@@ -76,6 +76,7 @@ pub(super) fn parse(
     let initial = initial_section(root, &mut p);
     let sources = source_section(root, run.map(|r| r.end), grid.as_ref(), &mut p);
     let receptors = receptor_section(root, grid.as_ref(), &mut p);
+    let candidates = candidate_section(root, grid.as_ref(), &mut p);
     let scheme = scheme_section(root, &mut p);
     let output = output_section(root, &mut p);
 
@@ -116,6 +117,7 @@ pub(super) fn parse(
                 scheme,
                 run,
                 receptors,
+                candidates,
                 output,
                 tracer,
                 land: g.land,

@@ -2,9 +2,10 @@
 //! `[[receptor]]` points, the last two checked to lie on water within the grid.
 
 use super::super::reader::{Problems, Section};
-use super::super::Receptor;
+use super::super::{Candidate, Receptor};
 use super::{
-    check_point, non_negative, optional_table, positive, table_array, GridOut, INITIAL_KINDS, RECEPTOR, SOURCE,
+    check_point, non_negative, optional_table, positive, table_array, GridOut, CANDIDATE, INITIAL_KINDS, RECEPTOR,
+    SOURCE,
 };
 use crate::initial::Initial;
 use crate::ops::sources::{Release, SourceSpec};
@@ -207,6 +208,35 @@ pub(super) fn receptor_section(root: Section, grid: Option<&GridOut>, p: &mut Pr
         let threshold = non_negative(s.num("threshold", p), &s.key("threshold"), p);
         if let Some(at) = at {
             out.push(Receptor { name, at, threshold });
+        }
+    }
+    out
+}
+
+/// `[[candidate]]`: candidate release points for the influence ranking (positions are checked,
+/// on water within the grid, when the grid is valid).
+pub(super) fn candidate_section(root: Section, grid: Option<&GridOut>, p: &mut Problems) -> Vec<Candidate> {
+    let Some(items) = table_array(root, "candidate", p) else {
+        return vec![];
+    };
+    let mut out: Vec<Candidate> = Vec::new();
+    for (label, t) in &items {
+        let s = Section::new(label, t);
+        s.check_keys(CANDIDATE, "in [[candidate]]", p);
+        let name = s.string("name", p).map_or_else(|| label.clone(), str::to_string);
+        blank_name(&s, &name, "the candidate's row in candidates.csv", p);
+        if let Some(k) = out.iter().position(|r| r.name == name) {
+            p.add(
+                s.key("name"),
+                format!("\"{name}\" is already the name of candidate[{k}]"),
+            );
+        }
+        let at = s.req_pair("at", "the candidate release point [x, y]", p);
+        if let (Some(at), Some(g)) = (at, grid) {
+            check_point(&s.key("at"), at, g, p);
+        }
+        if let Some(at) = at {
+            out.push(Candidate { name, at });
         }
     }
     out
