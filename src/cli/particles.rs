@@ -125,10 +125,7 @@ fn print_summary(s: &rp::ParticleSummary, dir: &std::path::Path, attached: bool,
                 "in cell"
             )?;
             for r in &s.receptors {
-                let verdict = serde_json::to_value(r.verdict)
-                    .ok()
-                    .and_then(|v| v.as_str().map(String::from))
-                    .unwrap_or_default();
+                let verdict = r.verdict.as_str();
                 writeln!(
                     out,
                     "  {:<20} {:>12.4e} {:>24} {:>10}  {verdict}",

@@ -40,6 +40,19 @@ pub enum Verdict {
     NotReached,
 }
 
+impl Verdict {
+    /// The verdict's name as in `comparison.csv` and `summary.json`.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Verdict::Agree => "agree",
+            Verdict::GridLower => "grid_lower",
+            Verdict::GridHigher => "grid_higher",
+            Verdict::Noisy => "noisy",
+            Verdict::NotReached => "not_reached",
+        }
+    }
+}
+
 /// One receptor's comparison.
 #[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct ReceptorComparison {
@@ -215,6 +228,19 @@ mod tests {
         assert_eq!(v(1.0, 1.0, 0.3, 10), Verdict::Noisy);
         assert_eq!(v(0.02, 0.0, 0.0, 0), Verdict::NotReached);
         assert_eq!(v(0.5, 0.0, 0.0, 0), Verdict::GridHigher);
+    }
+
+    #[test]
+    fn verdict_names_are_the_serialised_ones() {
+        for v in [
+            Verdict::Agree,
+            Verdict::GridLower,
+            Verdict::GridHigher,
+            Verdict::Noisy,
+            Verdict::NotReached,
+        ] {
+            assert_eq!(serde_json::to_value(v).unwrap(), v.as_str());
+        }
     }
 
     #[test]

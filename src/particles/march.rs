@@ -209,6 +209,12 @@ struct Probe {
 }
 
 impl Probe {
+    /// Sums this probe takes in a chunk's accumulator: the cell's count, mass and mass
+    /// squared, then the window's masses and squared masses.
+    fn slots(&self) -> usize {
+        3 + 2 * self.weights.len()
+    }
+
     fn width(&self) -> usize {
         (2 * self.reach + 1) as usize
     }
@@ -249,8 +255,7 @@ impl Probe {
 /// squared, then the window's masses and squared masses; last the mass and count in the water.
 fn probe_chunk(model: &Model, probes: &[Probe], xs: &[f64], ys: &[f64], ms: &[f64]) -> Vec<f64> {
     let g = &model.grid;
-    let sizes: Vec<usize> = probes.iter().map(|p| 3 + 2 * p.weights.len()).collect();
-    let total: usize = sizes.iter().sum();
+    let total: usize = probes.iter().map(Probe::slots).sum();
     let mut acc = vec![0.0; total + 2];
     let (inv_dx, inv_dy) = (1.0 / g.dx, 1.0 / g.dy);
     let mut water = crate::field::Neumaier::default();
@@ -263,7 +268,7 @@ fn probe_chunk(model: &Model, probes: &[Probe], xs: &[f64], ys: &[f64], ms: &[f6
         let i = (((x - g.x0) * inv_dx).floor() as isize).clamp(0, g.nx as isize - 1);
         let j = (((y - g.y0) * inv_dy).floor() as isize).clamp(0, g.ny as isize - 1);
         let mut off = 0;
-        for (p, &size) in probes.iter().zip(&sizes) {
+        for p in probes {
             if let Some(s) = p.slot(i, j) {
                 if i == p.i && j == p.j {
                     acc[off] += 1.0;
@@ -274,7 +279,7 @@ fn probe_chunk(model: &Model, probes: &[Probe], xs: &[f64], ys: &[f64], ms: &[f6
                 acc[off + 3 + s] += m;
                 acc[off + 3 + n + s] += m * m;
             }
-            off += size;
+            off += p.slots();
         }
     }
     acc[total] = water.value();
@@ -419,13 +424,13 @@ fn observe(model: &Model, s: &ParticleStepper, probes: &mut [Probe], run: &mut P
             a
         })
         .unwrap_or_else(|| {
-            let total: usize = probes.iter().map(|p| 3 + 2 * p.weights.len()).sum();
+            let total: usize = probes.iter().map(Probe::slots).sum();
             vec![0.0; total + 2]
         });
     let mut off = 0;
     for (p, r) in probes.iter().zip(run.receptors.iter_mut()) {
         let nw = p.weights.len();
-        let a = &sums[off..off + 3 + 2 * nw];
+        let a = &sums[off..off + p.slots()];
         let (gm, gm2) = (0..nw).fold((0.0, 0.0), |(x, y), s| {
             (x + p.weights[s] * a[3 + s], y + p.weights[s].powi(2) * a[3 + nw + s])
         });
@@ -457,7 +462,7 @@ fn observe(model: &Model, s: &ParticleStepper, probes: &mut [Probe], run: &mut P
             }
         }
         r.samples.push(sample);
-        off += 3 + 2 * nw;
+        off += p.slots();
     }
     let b: ParticleBudget = s.budget();
     let in_water = sums[off];

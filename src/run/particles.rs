@@ -322,10 +322,7 @@ fn comparison_csv(c: &[ReceptorComparison]) -> String {
         "receptor,grid_peak,particle_peak,particle_std_error,particle_count,kernel_peak,grid_peak_time,particle_peak_time,grid_arrival,particle_arrival,verdict,sentence\n",
     );
     for r in c {
-        let verdict = serde_json::to_value(r.verdict)
-            .ok()
-            .and_then(|v| v.as_str().map(String::from))
-            .unwrap_or_default();
+        let verdict = r.verdict.as_str();
         out.push_str(&format!(
             "{},{:e},{:e},{:e},{},{:e},{:e},{:e},{},{},{},\"{}\"\n",
             r.name.replace(',', ";"),
